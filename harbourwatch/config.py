@@ -1,0 +1,135 @@
+"""Sensors, zones, rules and filter settings, parsed and validated once.
+
+Everything a review run is configured with ends up in a frozen dataclass
+here. Parsing functions raise :class:`~harbourwatch.errors.InputError` naming
+the file, line and field of the first problem found.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from types import MappingProxyType
+from typing import Any
+
+from shapely.geometry.base import BaseGeometry
+
+__all__ = [
+    "SensorConfig",
+    "ZoneConfig",
+    "RuleConfig",
+    "FilterSettings",
+    "KNOT_M_S",
+]
+
+#: One international knot in metres per second (1852 m per hour; BIPM SI
+#: brochure, table 8, non-SI units).
+KNOT_M_S = 1852.0 / 3600.0
+
+
+@dataclass(frozen=True, kw_only=True)
+class SensorConfig:
+    """One shore radar, as given in the sensor TOML file."""
+
+    id: str
+    lat_deg: float
+    lon_deg: float
+    scan_period_s: float
+    range_sigma_m: float
+    bearing_sigma_deg: float
+    detection_probability: float
+    false_plots_per_scan: float
+    max_range_m: float
+
+    @property
+    def cover_area_m2(self) -> float:
+        """Area of the instrumented cover, a full circle of ``max_range_m``."""
+        return math.pi * self.max_range_m**2
+
+    @property
+    def clutter_intensity_per_m2(self) -> float:
+        """Clutter intensity: false plots per scan spread uniformly over the cover."""
+        return self.false_plots_per_scan / self.cover_area_m2
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class ZoneConfig:
+    """One geofence zone from the zones GeoJSON.
+
+    ``geometry`` is a valid shapely Polygon or MultiPolygon in WGS84
+    longitude/latitude (GeoJSON axis order).
+    """
+
+    id: str
+    name: str
+    kind: str
+    geometry: BaseGeometry
+
+
+@dataclass(frozen=True, kw_only=True)
+class RuleConfig:
+    """One rule from the rules TOML.
+
+    Kind-specific numbers (``min_duration_min``, ``max_speed_kn``,
+    ``max_distance_m`` ...) are kept in ``params`` exactly as given (units in
+    their names); the rule kind that reads them validates which are required.
+    ``line`` is the 1-based line of the rule's ``[[rule]]`` header in
+    ``source`` so later validation can still point at it.
+    """
+
+    id: str
+    kind: str
+    zone: str | None
+    min_probability: float = 0.5
+    params: Mapping[str, Any] = field(default_factory=lambda: MappingProxyType({}))
+    source: str = ""
+    line: int | None = None
+
+
+@dataclass(frozen=True, kw_only=True)
+class FilterSettings:
+    """Tuning of the trajectory-set filter. Defaults suit harbour traffic.
+
+    Attributes
+    ----------
+    accel_psd_m2_s3
+        Power spectral density ``q`` of the white acceleration of the
+        nearly-constant-velocity model, per axis (m^2/s^3).
+    mean_lifetime_s
+        Mean time a vessel stays in the surveillance picture; survival
+        probability over ``dt`` is ``exp(-dt / mean_lifetime_s)``.
+    arrivals_per_hour
+        Expected number of new vessels per hour over all covers together.
+    initial_vessels
+        Expected number of vessels already present when the feed starts.
+    birth_speed_sd_m_s
+        Standard deviation of each velocity component of a new vessel.
+    gate_probability
+        Probability mass inside the ellipsoidal gate (chi-square, 2 dof).
+    max_global_hypotheses
+        k of the k-best assignment per cluster and cap on kept global hypotheses.
+    log_weight_prune
+        Global hypotheses whose log-weight is this far below the best are dropped.
+    existence_prune
+        Bernoullis with existence probability below this are removed.
+    existence_threshold
+        Estimated trajectories need existence probability above this.
+    max_local_hypotheses
+        Cap on local hypotheses kept per Bernoulli.
+    n_scan
+        Track-oriented N-scan pruning depth (scans of the same sensor).
+    """
+
+    accel_psd_m2_s3: float = 0.05
+    mean_lifetime_s: float = 4 * 3600.0
+    arrivals_per_hour: float = 20.0
+    initial_vessels: float = 20.0
+    birth_speed_sd_m_s: float = 5.0
+    gate_probability: float = 0.9999
+    max_global_hypotheses: int = 20
+    log_weight_prune: float = 12.0
+    existence_prune: float = 1e-4
+    existence_threshold: float = 0.5
+    max_local_hypotheses: int = 30
+    n_scan: int = 4

@@ -1,0 +1,95 @@
+"""The run's local projected frame: the only module that talks to pyproj.
+
+Inside harbourwatch every position is east/north metres in one azimuthal
+equidistant projection centred on the mean of the sensor sites. Distances and
+azimuths measured from the centre are exact on the ellipsoid; elsewhere the
+scale error grows with the square of the distance from the centre (see
+``tests/test_geodesy.py`` for the bound that is guaranteed and checked).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+from pyproj import CRS, Geod, Transformer
+
+__all__ = ["LocalFrame", "WGS84_GEOD"]
+
+#: The WGS84 ellipsoid's geodesic solver (Karney's algorithm, in pyproj).
+WGS84_GEOD = Geod(ellps="WGS84")
+
+
+@dataclass(frozen=True, eq=False)
+class LocalFrame:
+    """Azimuthal equidistant east/north frame in metres around ``(lat0, lon0)``.
+
+    Parameters
+    ----------
+    lat0_deg, lon0_deg
+        Centre of the projection (WGS84 degrees).
+
+    Examples
+    --------
+    >>> f = LocalFrame(54.3, 10.15)
+    >>> e, n = f.to_local([54.3], [10.15])
+    >>> float(e[0]), float(n[0])
+    (0.0, 0.0)
+    """
+
+    lat0_deg: float
+    lon0_deg: float
+    _fwd: Transformer = field(init=False, repr=False)
+    _inv: Transformer = field(init=False, repr=False)
+
+    def __post_init__(self) -> None:
+        crs = CRS.from_proj4(
+            f"+proj=aeqd +lat_0={self.lat0_deg!r} +lon_0={self.lon0_deg!r} "
+            "+x_0=0 +y_0=0 +ellps=WGS84 +units=m +no_defs"
+        )
+        object.__setattr__(
+            self, "_fwd", Transformer.from_crs("EPSG:4326", crs, always_xy=True)
+        )
+        object.__setattr__(
+            self, "_inv", Transformer.from_crs(crs, "EPSG:4326", always_xy=True)
+        )
+
+    @classmethod
+    def around(cls, lats_deg: Iterable[float], lons_deg: Iterable[float]) -> LocalFrame:
+        """Frame centred on the mean of the given points (e.g. the sensor sites)."""
+        lat = np.asarray(list(lats_deg), dtype=float)
+        lon = np.asarray(list(lons_deg), dtype=float)
+        if lat.size == 0:
+            raise ValueError("need at least one point to centre the frame")
+        # circular mean of longitudes so that frames across the antimeridian work
+        lon0 = float(np.degrees(np.arctan2(np.sin(np.radians(lon)).mean(),
+                                           np.cos(np.radians(lon)).mean())))
+        return cls(float(lat.mean()), lon0)
+
+    def to_local(self, lat_deg: ArrayLike, lon_deg: ArrayLike) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+        """WGS84 degrees to east/north metres (vectorised)."""
+        e, n = self._fwd.transform(np.asarray(lon_deg, float), np.asarray(lat_deg, float))
+        return np.asarray(e, float), np.asarray(n, float)
+
+    def to_wgs84(self, east_m: ArrayLike, north_m: ArrayLike) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+        """East/north metres to WGS84 ``(lat_deg, lon_deg)`` (vectorised)."""
+        lon, lat = self._inv.transform(np.asarray(east_m, float), np.asarray(north_m, float))
+        return np.asarray(lat, float), np.asarray(lon, float)
+
+    def grid_convergence_rad(self, east_m: ArrayLike, north_m: ArrayLike) -> NDArray[np.float64]:
+        """Angle from local grid north to true north at the given points (radians).
+
+        Add it to a grid course to get a true course. Computed from the
+        projection numerically (the inverse of a short northward step).
+        """
+        e = np.asarray(east_m, float)
+        n = np.asarray(north_m, float)
+        lat, lon = self.to_wgs84(e, n)
+        step = 1.0
+        e2, n2 = self.to_local(lat + step / 111_000.0, lon)
+        return np.arctan2(e2 - e, n2 - n) * -1.0
+
+    def __repr__(self) -> str:
+        return f"LocalFrame(lat0_deg={self.lat0_deg:.6f}, lon0_deg={self.lon0_deg:.6f})"
