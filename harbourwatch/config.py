@@ -75,7 +75,8 @@ class RuleConfig:
     ``max_distance_m`` ...) are kept in ``params`` exactly as given (units in
     their names); the rule kind that reads them validates which are required.
     ``line`` is the 1-based line of the rule's ``[[rule]]`` header in
-    ``source`` so later validation can still point at it.
+    ``source`` so later validation can still point at it; ``param_lines``
+    maps each key of the rule to its own 1-based line.
     """
 
     id: str
@@ -85,6 +86,7 @@ class RuleConfig:
     params: Mapping[str, Any] = field(default_factory=lambda: MappingProxyType({}))
     source: str = ""
     line: int | None = None
+    param_lines: Mapping[str, int] = field(default_factory=lambda: MappingProxyType({}))
 
 
 @dataclass(frozen=True, kw_only=True)
