@@ -21,6 +21,8 @@ __all__ = [
     "RuleConfig",
     "FilterSettings",
     "KNOT_M_S",
+    "ParamSpec",
+    "RuleSchema",
 ]
 
 #: One international knot in metres per second (1852 m per hour; BIPM SI
@@ -135,3 +137,24 @@ class FilterSettings:
     existence_threshold: float = 0.5
     max_local_hypotheses: int = 30
     n_scan: int = 4
+
+
+@dataclass(frozen=True, kw_only=True)
+class ParamSpec:
+    """One numeric parameter a rule kind accepts (for validation of rules TOML)."""
+
+    name: str
+    required: bool = True
+    min_value: float = 0.0
+    max_value: float = math.inf
+    description: str = ""
+
+
+@dataclass(frozen=True, kw_only=True)
+class RuleSchema:
+    """What a rule kind accepts: its parameters and whether ``zone`` is required."""
+
+    kind: str
+    params: tuple[ParamSpec, ...]
+    zone_required: bool = True
+    description: str = ""
