@@ -9,13 +9,15 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from numpy.typing import NDArray
 
 from ..config import FilterSettings
-from ..trajectories import AsSeenTable, Trajectory
+
+if TYPE_CHECKING:  # trajectories imports the Gaussian toolkit from this package
+    from ..trajectories import AsSeenTable, Trajectory
 
 __all__ = ["SensorModel", "MeasurementScan", "FilterOutput", "BirthRegion", "run_filter"]
 
