@@ -17,7 +17,16 @@ from numpy.typing import NDArray
 from .filter.gaussian import ffbs_sample
 from .geodesy import LocalFrame
 
-__all__ = ["Trajectory", "TrajectorySet", "AsSeenTable"]
+__all__ = [
+    "Trajectory",
+    "TrajectorySet",
+    "AsSeenTable",
+    "tracks_csv_text",
+    "as_seen_csv_text",
+    "trajectories_geojson",
+    "TRACK_COLUMNS",
+    "AS_SEEN_COLUMNS",
+]
 
 Array = NDArray[np.float64]
 
@@ -154,3 +163,114 @@ class TrajectorySet:
             if t.id == track_id:
                 return t
         raise KeyError(track_id)
+
+
+# --------------------------------------------------------------------------- export
+
+#: One international knot in m/s (1852 m per hour).
+_KNOT = 1852.0 / 3600.0
+
+TRACK_COLUMNS = ("track", "time", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "existence")
+AS_SEEN_COLUMNS = ("time", "track", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "existence")
+
+
+def _sog_cog(frame: LocalFrame, mean: Array) -> tuple[Array, Array, Array, Array]:
+    """Latitude, longitude, SOG (kn) and COG (deg true) of local states ``(N, 4)``."""
+    lat, lon = frame.to_wgs84(mean[:, 0], mean[:, 2])
+    sog = np.hypot(mean[:, 1], mean[:, 3]) / _KNOT
+    grid_course = np.arctan2(mean[:, 1], mean[:, 3])
+    cog = np.degrees(grid_course + frame.grid_convergence_rad(mean[:, 0], mean[:, 2])) % 360.0
+    cog = np.where(np.round(cog, 1) >= 360.0, 0.0, cog)
+    return lat, lon, sog, cog
+
+
+def _csv_text(header: tuple[str, ...], columns: list[NDArray]) -> str:  # type: ignore[type-arg]
+    lines = [",".join(header)]
+    if columns and len(columns[0]):
+        rows = np.column_stack([np.asarray(c, dtype=str) for c in columns])
+        lines.extend(",".join(r) for r in rows)
+    return "\n".join(lines) + "\n"
+
+
+def _fmt(values: Array, decimals: int) -> NDArray[np.str_]:
+    return np.char.mod(f"%.{decimals}f", np.asarray(values, dtype=float))
+
+
+def tracks_csv_text(tset: TrajectorySet) -> str:
+    """The contract's ``tracks.csv`` for a trajectory set (rows by track, then time).
+
+    Track ids are plain ``T<n>`` strings, so no CSV quoting is ever needed.
+    """
+    from .timefmt import format_utc
+
+    cols: list[list[NDArray]] = [[] for _ in TRACK_COLUMNS]  # type: ignore[type-arg]
+    for t in tset.trajectories:
+        lat, lon, sog, cog = _sog_cog(tset.frame, t.mean)
+        n = t.time.size
+        parts = [
+            np.full(n, t.id),
+            format_utc(t.time),
+            _fmt(lat, 7),
+            _fmt(lon, 7),
+            _fmt(sog, 2),
+            _fmt(cog, 1),
+            _fmt(t.position_sd, 1),
+            _fmt(np.full(n, t.existence), 4),
+        ]
+        for c, p in zip(cols, parts, strict=True):
+            c.append(p)
+    columns = [np.concatenate(c) if c else np.zeros(0, str) for c in cols]
+    return _csv_text(TRACK_COLUMNS, columns)
+
+
+def as_seen_csv_text(tset: TrajectorySet) -> str:
+    """``as_seen.csv``: the filtered estimate as known after each scan (documented in README)."""
+    from .timefmt import format_utc
+
+    a = tset.as_seen
+    lat, lon, sog, cog = _sog_cog(tset.frame, a.mean) if a.time.size else (a.time,) * 4
+    columns = [
+        format_utc(a.time) if a.time.size else np.zeros(0, str),
+        a.track,
+        _fmt(lat, 7),
+        _fmt(lon, 7),
+        _fmt(sog, 2),
+        _fmt(cog, 1),
+        _fmt(a.sd, 1),
+        _fmt(a.existence, 4),
+    ]
+    return _csv_text(AS_SEEN_COLUMNS, columns)
+
+
+def trajectories_geojson(tset: TrajectorySet) -> dict:  # type: ignore[type-arg]
+    """All trajectories as an RFC 7946 FeatureCollection of LineStrings (WGS84)."""
+    from .timefmt import format_utc_one
+
+    features = []
+    for t in tset.trajectories:
+        lat, lon = tset.frame.to_wgs84(t.mean[:, 0], t.mean[:, 2])
+        coords = [[round(float(x), 7), round(float(y), 7)] for x, y in zip(lon, lat, strict=True)]
+        geom = (
+            {"type": "LineString", "coordinates": coords}
+            if len(coords) > 1
+            else {"type": "Point", "coordinates": coords[0]}
+        )
+        features.append(
+            {
+                "type": "Feature",
+                "id": t.id,
+                "geometry": geom,
+                "properties": {
+                    "track": t.id,
+                    "start": format_utc_one(t.start),
+                    "end": format_utc_one(t.end),
+                    "existence": round(t.existence, 4),
+                    "end_probability": round(t.end_probability, 4),
+                    "present_at_end": bool(t.alive_at_end),
+                    "states": int(t.time.size),
+                    "plots": int(np.count_nonzero(t.plot_ids >= 0)) if t.plot_ids.size else 0,
+                    "max_sog_kn": round(float(t.speed.max()) / _KNOT, 2),
+                },
+            }
+        )
+    return {"type": "FeatureCollection", "features": features}
