@@ -123,6 +123,15 @@ class FilterSettings:
         Cap on local hypotheses kept per Bernoulli.
     n_scan
         Track-oriented N-scan pruning depth (scans of the same sensor).
+    max_coast_s
+        A hypothesis with no new state for this long (outside every cover)
+        is taken as ended.
+    min_empty_scan_clutter
+        A scan with no plot at all from a radar expected to give at least
+        this many false plots per scan is taken as an outage and skipped.
+    as_seen_window_s
+        The as-seen view shows a trajectory while its last state is at most
+        this old.
     """
 
     accel_psd_m2_s3: float = 0.05
@@ -132,11 +141,14 @@ class FilterSettings:
     birth_speed_sd_m_s: float = 5.0
     gate_probability: float = 0.9999
     max_global_hypotheses: int = 20
-    log_weight_prune: float = 12.0
+    log_weight_prune: float = 9.21  # ln 1e4: the 1e-4 relative weight of the methods note
     existence_prune: float = 1e-4
     existence_threshold: float = 0.5
     max_local_hypotheses: int = 30
     n_scan: int = 4
+    max_coast_s: float = 1800.0
+    min_empty_scan_clutter: float = 3.0
+    as_seen_window_s: float = 15.0
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -158,3 +170,10 @@ class RuleSchema:
     params: tuple[ParamSpec, ...]
     zone_required: bool = True
     description: str = ""
+
+
+# --- parsing -----------------------------------------------------------------------------
+# The loaders live in private modules (kept small); they are re-exported here.
+from ._configparse import load_rules, load_sensors, load_zones  # noqa: E402
+
+__all__ += ["load_sensors", "load_zones", "load_rules"]

@@ -1,6 +1,18 @@
 """Reading plot feeds into columnar arrays and grouping them into scans.
 
-(Interface fixed; implementation in progress.)
+A feed is CSV (optionally gzip-compressed, ``.csv.gz``) or Parquet with the
+columns ``time``, ``sensor``, ``lat``, ``lon`` and optionally ``scan`` and
+``sigma_m`` (see the file contract). Other columns are ignored. The format is
+recognised from the file's first bytes (``PAR1`` for Parquet, the gzip magic
+for compressed CSV), so the suffix does not matter.
+
+Every value is checked once, here, with vectorised pyarrow/numpy code; the
+first offending row of a file is reported as an
+:class:`~harbourwatch.errors.InputError` naming the file, its 1-based physical
+line (the header is line 1) and the column. Parquet files have no lines: a
+problem in the Parquet row ``N`` (1-based) is reported as ``line N + 1``, the
+line the row would have in the same data written as CSV, and the message says
+``Parquet row N``.
 """
 
 from __future__ import annotations
@@ -10,9 +22,13 @@ from dataclasses import dataclass
 from os import PathLike
 
 import numpy as np
+import pandas as pd
 from numpy.typing import NDArray
 
+from ._feedcols import Problem, Table, parse_sensor, parse_time, read_table
+from ._feedcols import parse_float as _parse_float
 from .config import SensorConfig
+from .errors import InputError
 
 __all__ = ["PlotTable", "Scan", "read_feeds", "group_scans"]
 
@@ -60,9 +76,9 @@ class PlotTable:
 class Scan:
     """One antenna revolution of one sensor: a measurement set.
 
-    ``time`` is the reference time of the scan (its latest plot's time, or
-    the nominal end of the revolution for an empty scan); ``plots`` are row
-    indices into the :class:`PlotTable`, sorted by plot time.
+    ``time`` is the reference time of the scan (its latest plot's time;
+    :func:`group_scans` makes no empty scans); ``plots`` are row indices into
+    the :class:`PlotTable`, sorted by plot time.
     """
 
     sensor: int
@@ -71,11 +87,198 @@ class Scan:
     plots: NDArray[np.int64]
 
 
+_COLUMNS = ("time", "sensor", "lat", "lon", "scan", "sigma_m")
+
+
+def _read_one(
+    path: str, index: int, sensors: Sequence[SensorConfig]
+) -> dict[str, NDArray]:
+    """Read and validate one feed file into plain numpy columns (file order)."""
+    table: Table = read_table(path)
+    n = table.num_rows
+    problems: list[Problem | None] = []
+
+    time, p = parse_time(table.columns["time"])
+    problems.append(p)
+    sensor, p = parse_sensor(table.columns["sensor"], [s.id for s in sensors])
+    problems.append(p)
+    lat, p = _parse_float(table.columns["lat"], field="lat", lo=-90.0, hi=90.0, what="a latitude in degrees")
+    problems.append(p)
+    lon, p = _parse_float(table.columns["lon"], field="lon", lo=-180.0, hi=180.0,
+                          what="a longitude in degrees")
+    problems.append(p)
+
+    if "scan" in table.columns:
+        scan_f, p = _parse_float(table.columns["scan"], field="scan", lo=0.0, hi=2.0**53, integer=True,
+                                 what="a non-negative integer scan number")
+        problems.append(p)
+        scan = np.where(np.isfinite(scan_f), scan_f, -1).astype(np.int64)
+    else:
+        scan = np.full(n, -1, dtype=np.int64)
+    if "sigma_m" in table.columns:
+        sigma, p = _parse_float(table.columns["sigma_m"], field="sigma_m", lo=0.0, hi=np.inf, lo_open=True,
+                                optional=True, what="a positive number of metres")
+        problems.append(p)
+    else:
+        sigma = np.full(n, np.nan)
+
+    found = [q for q in problems if q is not None]
+    if found:
+        first = min(found, key=lambda q: q.row)  # stable: earlier checks win ties
+        line = int(table.lines[first.row])
+        where = f" (Parquet row {line - 1})" if table.parquet else ""
+        raise InputError(first.message + where, file=path, line=line, field=first.field)
+
+    return {
+        "time": time, "sensor": sensor, "lat": lat, "lon": lon, "scan": scan,
+        "sigma_m": sigma, "source": np.full(n, index, dtype=np.int64),
+        "line": table.lines.astype(np.int64),
+    }
+
+
 def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorConfig]) -> PlotTable:
-    """Read and merge plot feeds (CSV, ``.csv.gz``, Parquet)."""
-    raise NotImplementedError
+    """Read and merge plot feeds (CSV, ``.csv.gz``, Parquet).
+
+    Parameters
+    ----------
+    paths
+        Feed files; their rows are merged.
+    sensors
+        The run's sensors; ``sensor`` values must be one of their ids, and
+        :attr:`PlotTable.sensor` indexes this sequence.
+
+    Returns
+    -------
+    PlotTable
+        Rows sorted by time (ties: by file in the order given, then line),
+        exact duplicates (same time, sensor, lat, lon, scan, sigma_m) dropped
+        after the first and counted.
+
+    Raises
+    ------
+    InputError
+        For the first problem of the first bad file: unreadable or empty
+        file, missing required column, wrong number of fields, empty or
+        malformed value, time without zone designator, a file mixing epoch
+        and ISO 8601 times, unknown sensor, out-of-range position,
+        negative or non-integer scan, non-positive sigma_m.
+
+    Notes
+    -----
+    Times are epoch seconds, both forms rounded to the microsecond the same
+    way, so ``1777874401.25`` and ``2026-05-04T06:00:01.250Z`` give the same
+    float. A row whose contract fields are all empty (a blank line) is
+    skipped. Columns other than the six of the contract are ignored. Line
+    numbers assume no line break inside a quoted value.
+    """
+    files = tuple(str(p) for p in paths)
+    parts = [_read_one(f, i, sensors) for i, f in enumerate(files)]
+    if parts:
+        cols = {c: np.concatenate([p[c] for p in parts]) for c in parts[0]}
+    else:
+        cols = {c: np.empty(0) for c in (*_COLUMNS, "source", "line")}
+    order = np.lexsort((cols["line"], cols["source"], cols["time"]))
+    cols = {c: v[order] for c, v in cols.items()}
+    keep = _first_of_duplicates(cols)
+    dropped = int(keep.size - np.count_nonzero(keep))
+    if dropped:
+        cols = {c: v[keep] for c, v in cols.items()}
+    return PlotTable(
+        time=cols["time"].astype(np.float64),
+        sensor=cols["sensor"].astype(np.int64),
+        lat_deg=cols["lat"].astype(np.float64),
+        lon_deg=cols["lon"].astype(np.float64),
+        scan=cols["scan"].astype(np.int64),
+        sigma_m=cols["sigma_m"].astype(np.float64),
+        source=cols["source"].astype(np.int64),
+        line=cols["line"].astype(np.int64),
+        files=files,
+        duplicates_dropped=dropped,
+    )
+
+
+def _first_of_duplicates(cols: dict[str, NDArray]) -> NDArray[np.bool_]:
+    """Mask keeping the first of each set of exact duplicate rows (rows sorted by time).
+
+    Duplicates share their time, so only runs of equal times are compared.
+    """
+    t = cols["time"]
+    keep = np.ones(t.size, dtype=bool)
+    same = t[1:] == t[:-1]
+    if not same.any():
+        return keep
+    tied = np.zeros(t.size, dtype=bool)
+    tied[1:] |= same
+    tied[:-1] |= same
+    frame = pd.DataFrame({c: cols[c][tied] for c in _COLUMNS})
+    keep[tied] = ~frame.duplicated(keep="first").to_numpy()
+    return keep
 
 
 def group_scans(plots: PlotTable, sensors: Sequence[SensorConfig]) -> list[Scan]:
-    """Group plots into scans per sensor, ordered by reference time."""
-    raise NotImplementedError
+    """Group plots into scans per sensor, ordered by reference time.
+
+    Plots that carry a feed ``scan`` number are grouped by (sensor, scan).
+    A sensor whose plots carry none is cut into revolutions of its
+    ``scan_period_s``, counted from its first plot: revolution
+    ``floor((t - t_first) / scan_period_s)``, so a plot exactly on a
+    boundary belongs to the later revolution.
+
+    Only revolutions holding at least one plot become scans. A revolution
+    without any plot at all (not even clutter) is taken as a sensor outage
+    that carries no information, rather than as a scan in which every vessel
+    was missed.
+
+    Returns
+    -------
+    list of Scan
+        Ordered by (reference time, sensor index, number); ``Scan.time`` is
+        the latest plot time of the scan, ``Scan.plots`` the row indices
+        sorted by plot time.
+
+    Raises
+    ------
+    InputError
+        When one sensor has plots both with and without scan numbers (feed
+        files that disagree).
+    """
+    n = len(plots)
+    if n == 0:
+        return []
+    sensor = plots.sensor
+    has_scan = plots.scan >= 0
+    n_sensors = max(len(sensors), int(sensor.max()) + 1)
+    with_scan = np.bincount(sensor, weights=has_scan, minlength=n_sensors)
+    total = np.bincount(sensor, minlength=n_sensors)
+    mixed = (with_scan > 0) & (with_scan < total)
+    if mixed.any():
+        s = int(np.argmax(mixed))
+        row = int(np.argmax((sensor == s) & ~has_scan))
+        raise InputError(
+            f"sensor '{sensors[s].id}' has plots with and without a scan number; "
+            "give the scan column in every feed file of this sensor or in none",
+            file=plots.files[int(plots.source[row])], line=int(plots.line[row]), field="scan",
+        )
+    # Revolution index for sensors without feed scan numbers.
+    big = np.finfo(np.float64).max
+    first = np.full(n_sensors, big)
+    np.minimum.at(first, sensor, plots.time)
+    period = np.array([s.scan_period_s for s in sensors] + [1.0] * (n_sensors - len(sensors)))
+    rev = np.floor((plots.time - first[sensor]) / period[sensor]).astype(np.int64)
+    number = np.where(has_scan, plots.scan, rev)
+
+    order = np.lexsort((plots.time, number, sensor))
+    s_sorted, n_sorted = sensor[order], number[order]
+    starts = np.flatnonzero(
+        np.concatenate(([True], (s_sorted[1:] != s_sorted[:-1]) | (n_sorted[1:] != n_sorted[:-1])))
+    )
+    ends = np.append(starts[1:], n) - 1
+    ref_time = plots.time[order[ends]]
+    g_sensor, g_number = s_sorted[starts], n_sorted[starts]
+    groups = np.split(order.astype(np.int64), starts[1:])
+    by = np.lexsort((g_number, g_sensor, ref_time))
+    return [
+        Scan(sensor=int(g_sensor[g]), number=int(g_number[g]), time=float(ref_time[g]),
+             plots=groups[g])
+        for g in by
+    ]

@@ -2,9 +2,19 @@
 
 Inside harbourwatch every position is east/north metres in one azimuthal
 equidistant projection centred on the mean of the sensor sites. Distances and
-azimuths measured from the centre are exact on the ellipsoid; elsewhere the
-scale error grows with the square of the distance from the centre (see
-``tests/test_geodesy.py`` for the bound that is guaranteed and checked).
+azimuths measured from the centre are exact on the ellipsoid (below 1 mm);
+elsewhere the scale across the radius is ``k = 1 + (r/R)^2/6 + ...`` at
+distance ``r`` (``R`` the local radius of curvature), never below 1.
+
+Guaranteed and checked against pyproj's Geod (Karney's geodesics) in
+``tests/test_geodesy.py``: for two points both within 25 km of the centre,
+the Euclidean frame distance exceeds the geodesic distance by at most
+``(25 km / R)^2 / 6`` of it, 2.56e-6 (0.128 m over 50 km at 57.5 N) and is
+never shorter; to_local/to_wgs84 round trips agree within 1e-6 m (PROJ
+snaps points closer than about 0.6 mm to the centre onto it). The grid
+convergence is exact for true north; since the projection is not
+conformal, another course is turned by up to ``2 (r/R)^2/6`` rad more
+(5e-6 rad at 25 km).
 """
 
 from __future__ import annotations

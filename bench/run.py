@@ -1,0 +1,100 @@
+"""`make bench`: speed, memory and accuracy figures, printed.
+
+Throughput: the simulated 6-hour, two-radar feed with about 40 vessels present
+at a time and 15 clutter plots per scan per radar, reviewed end to end by
+``python -m harbourwatch run`` in a child process (wall time, real-time
+factor, peak memory of the child, stage timings from run.json, report size),
+then scored against its ground truth. Accuracy: the smaller scenarios of the
+simulator against the oracle (Kalman smoother with the true association).
+
+Set ``BENCH_HOURS`` to shorten the throughput feed (default 6).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import resource
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+OUT = Path(os.environ.get("BENCH_OUT", "bench_out"))
+
+
+def _line(label: str, value: str) -> None:
+    print(f"  {label:<34s} {value}")
+
+
+def throughput() -> None:
+    from harbourwatch.scoring import score_files
+    from harbourwatch.simulate import simulate_to_dir
+
+    hours = float(os.environ.get("BENCH_HOURS", "6"))
+    feed_dir = OUT / "feed"
+    print(f"== throughput: scenario 'bench', {hours:g} h, two radars, ~40 vessels, 15 false plots/scan")
+    t = time.perf_counter()
+    files = simulate_to_dir("bench", feed_dir, duration_s=hours * 3600.0, feed_format="csv.gz")
+    _line("simulation (not part of the run)", f"{time.perf_counter() - t:.1f} s")
+    feed = next(p for p in files if p.name.startswith("plots"))
+    truth = next(p for p in files if p.name.startswith("truth"))
+    zones = feed_dir / "zones.geojson"
+    rules = feed_dir / "rules.toml"
+    run_dir = OUT / "run"
+    cmd = [sys.executable, "-m", "harbourwatch", "run", str(feed), "--sensors",
+           str(feed_dir / "sensors.toml"), "--zones", str(zones), "--rules", str(rules),
+           "--out", str(run_dir), "--quiet"]
+    t = time.perf_counter()
+    proc = subprocess.run(cmd, capture_output=True, text=True)
+    wall = time.perf_counter() - t
+    peak_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0
+    if proc.returncode != 0:
+        print(proc.stdout[-3000:], proc.stderr[-3000:])
+        raise SystemExit(f"run failed with status {proc.returncode}")
+    run = json.loads((run_dir / "run.json").read_text())
+    tim = run["timings"]
+    feed_s = hours * 3600.0
+    _line("plots", f"{run['feed']['plots']:,} in {run['feed']['scans']:,} scans")
+    _line("wall time (whole run, child process)", f"{wall:.1f} s")
+    _line("real-time factor", f"{feed_s / wall:.0f}x (target >= 500x)")
+    _line("peak memory (child, max RSS)", f"{peak_mb:.0f} MB (target < 2048 MB)")
+    for k in ("read_inputs_s", "filter_s", "rules_s", "write_tables_s", "reports_s"):
+        _line(f"  stage {k[:-2]}", f"{tim.get(k, float('nan')):.1f} s")
+    base = tim["total_s"] - tim.get("rules_s", 0.0)
+    _line("rules added to the run", f"{100 * tim.get('rules_s', 0.0) / base:.1f} % (target < 20 %)")
+    _line("trajectories / alerts", f"{run['results']['trajectories']} / {run['results']['alerts']}")
+    rep = run_dir / "report.html"
+    _line("report.html size", f"{rep.stat().st_size / 1e6:.1f} MB")
+    incidents = list((run_dir / "incidents").glob("*.html"))
+    if incidents:
+        _line("incident pages (largest)", f"{len(incidents)} ({max(p.stat().st_size for p in incidents) / 1e6:.2f} MB)")
+    load = _load_time(rep)
+    _line("report load time (headless Chromium)", "n/a (no chromium)" if load is None else f"{load:.1f} s")
+    t = time.perf_counter()
+    score = score_files(run_dir / "tracks.csv", truth)
+    d = score.as_dict()
+    _line("scoring time", f"{time.perf_counter() - t:.1f} s")
+    _line("mean GOSPA (c=200 m, p=2)", f"{d['gospa_mean']:.1f} m")
+    _line("trajectory GOSPA", f"{d['tgospa']:.0f}  parts {json.dumps({k: round(v) for k, v in d['tgospa_parts'].items()})}")
+
+
+def _load_time(path: Path) -> float | None:
+    try:
+        from harbourwatch.report.screenshot import page_load_seconds
+    except ImportError:
+        return None
+    return page_load_seconds(path)
+
+
+def main() -> None:
+    OUT.mkdir(parents=True, exist_ok=True)
+    from bench import accuracy, bench_score
+
+    accuracy.main()
+    bench_score.main()
+    throughput()
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,138 @@
+"""Writers of the simulator's files: plot feed, sensor TOML, truth (private helpers)."""
+
+from __future__ import annotations
+
+import gzip
+import io
+import json
+import math
+import os
+import tempfile
+from collections.abc import Sequence
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .config import SensorConfig
+from .timefmt import format_utc
+
+if TYPE_CHECKING:
+    from .simulate import SimulationResult
+
+Array = NDArray[np.float64]
+
+#: Step of the rows written to ``truth.csv`` (seconds, on a grid from the feed start).
+TRUTH_FILE_STEP_S = 2.0
+
+
+def _toml_str(s: str) -> str:
+    return json.dumps(s, ensure_ascii=False)
+
+
+def sensors_to_toml(sensors: Sequence[SensorConfig]) -> str:
+    """The sensor file (contract keys) for these sensors, as TOML text."""
+    lines = ["# Sensor file: one [[sensor]] table per radar (harbourwatch contract).", ""]
+    for s in sensors:
+        lines += [
+            "[[sensor]]",
+            f"id = {_toml_str(s.id)}",
+            f"lat = {float(s.lat_deg)!r}",
+            f"lon = {float(s.lon_deg)!r}",
+            f"scan_period_s = {float(s.scan_period_s)!r}",
+            f"range_sigma_m = {float(s.range_sigma_m)!r}",
+            f"bearing_sigma_deg = {float(s.bearing_sigma_deg)!r}",
+            f"detection_probability = {float(s.detection_probability)!r}",
+            f"false_plots_per_scan = {float(s.false_plots_per_scan)!r}",
+            f"max_range_m = {float(s.max_range_m)!r}",
+            "",
+        ]
+    return "\n".join(lines)
+
+
+def _write_atomic(path: Path, data: bytes) -> None:
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(fd, "wb") as f:
+            f.write(data)
+        mask = os.umask(0)
+        os.umask(mask)
+        os.chmod(tmp, 0o666 & ~mask)  # mkstemp makes 0600; give the usual file mode
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+def write_sensors_toml(sensors: Sequence[SensorConfig], path: str | os.PathLike[str]) -> Path:
+    """Write :func:`sensors_to_toml` to ``path`` (atomically)."""
+    p = Path(path)
+    _write_atomic(p, sensors_to_toml(sensors).encode("utf-8"))
+    return p
+
+
+def _gzip(data: bytes) -> bytes:
+    buf = io.BytesIO()
+    # mtime=0 and no file name in the header: byte-identical output
+    with gzip.GzipFile(filename="", mode="wb", fileobj=buf, mtime=0, compresslevel=9) as g:
+        g.write(data)
+    return buf.getvalue()
+
+
+def _csv_bytes(header: Sequence[str], columns: Sequence[NDArray[np.str_]]) -> bytes:
+    if columns and columns[0].size:
+        rows = columns[0].astype(object)
+        for c in columns[1:]:
+            rows = rows + "," + c.astype(object)
+        body = "\n".join(rows.tolist()) + "\n"
+    else:
+        body = ""
+    return (",".join(header) + "\n" + body).encode("utf-8")
+
+
+def _fmt(x: Array, digits: int) -> NDArray[np.str_]:
+    return np.char.mod(f"%.{digits}f", np.asarray(x, float))
+
+
+def plots_columns(result: SimulationResult) -> dict[str, NDArray[np.str_]]:
+    """The plot feed as string columns (contract order; ``sigma_m`` only when set)."""
+    p = result.plots
+    ids = np.array([s.id for s in result.sensors] or [""], dtype=object)
+    cols = {
+        "time": format_utc(p.time),
+        "sensor": ids[p.sensor].astype(str) if len(p) else np.zeros(0, str),
+        "lat": _fmt(p.lat_deg, 7),
+        "lon": _fmt(p.lon_deg, 7),
+        "scan": p.scan.astype(str),
+    }
+    if np.isfinite(p.sigma_m).any():
+        cols["sigma_m"] = np.where(np.isfinite(p.sigma_m), _fmt(p.sigma_m, 2), "")
+    return cols
+
+
+def truth_columns(result: SimulationResult, *, step_s: float = TRUTH_FILE_STEP_S
+                  ) -> dict[str, NDArray[np.str_]]:
+    """Truth rows ``track,time,lat,lon`` every ``step_s`` (grid from the feed start), in cover only."""
+    names, times, lats, lons = [], [], [], []
+    t0 = result.start_epoch_s
+    for tr in result.truth:
+        if tr.time.size == 0:
+            continue
+        rel = tr.time - t0
+        grid = step_s * np.arange(math.ceil(rel[0] / step_s - 1e-9),
+                                  math.floor(rel[-1] / step_s + 1e-9) + 1)
+        if grid.size == 0:
+            continue
+        lat = np.interp(grid, rel, tr.lat_deg)
+        lon = np.interp(grid, rel, tr.lon_deg)
+        cover = np.interp(grid, rel, tr.in_cover.astype(float)) >= 0.5
+        names.append(np.full(int(cover.sum()), tr.name, dtype=object))
+        times.append(t0 + grid[cover])
+        lats.append(lat[cover])
+        lons.append(lon[cover])
+    if not names:
+        z = np.zeros(0)
+        return {"track": np.zeros(0, str), "time": format_utc(z), "lat": _fmt(z, 7), "lon": _fmt(z, 7)}
+    return {"track": np.concatenate(names).astype(str), "time": format_utc(np.concatenate(times)),
+            "lat": _fmt(np.concatenate(lats), 7), "lon": _fmt(np.concatenate(lons), 7)}

@@ -1,0 +1,123 @@
+"""Immutable filtered nodes shared by all hypotheses (methods note §1.7, option 3).
+
+A node is one state of a trajectory: its time, the filtered mean and
+covariance of that state, the plot used (``-1`` for a missed detection), the
+sensor of the scan and a pointer to its parent node (``-1`` at the start).
+Hypotheses that share history share nodes; a whole trajectory is the chain
+from a leaf back to its root and is smoothed on demand.
+
+Nodes live in growable columnar arrays (not one Python object each). The
+one-step predictions needed by the smoother are not stored: they are
+recomputed from the parent's filtered moments with the same ``F(Δt)``,
+``Q(Δt)`` the filter used, which halves the memory.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.typing import NDArray
+
+from ..models import cv_process_noise_batch, cv_transition_batch
+from .gaussian import kf_predict
+
+Array = NDArray[np.float64]
+IntArray = NDArray[np.int64]
+
+
+class NodeStore:
+    """Append-only columnar store of filtered trajectory nodes."""
+
+    __slots__ = ("n", "t", "parent", "plot", "sensor", "m", "P")
+
+    def __init__(self, capacity: int = 4096) -> None:
+        self.n = 0
+        self.t = np.empty(capacity)
+        self.parent = np.empty(capacity, np.int64)
+        self.plot = np.empty(capacity, np.int64)
+        self.sensor = np.empty(capacity, np.int64)
+        self.m = np.empty((capacity, 4))
+        self.P = np.empty((capacity, 4, 4))
+
+    def _reserve(self, extra: int) -> None:
+        need = self.n + extra
+        cap = self.t.size
+        if need <= cap:
+            return
+        new = max(need, 2 * cap)
+        for name in ("t", "parent", "plot", "sensor", "m", "P"):
+            old = getattr(self, name)
+            arr = np.empty((new,) + old.shape[1:], old.dtype)
+            arr[: self.n] = old[: self.n]
+            setattr(self, name, arr)
+
+    def add_batch(
+        self,
+        t: Array,
+        parent: IntArray,
+        plot: IntArray,
+        sensor: IntArray | int,
+        m: Array,
+        P: Array,
+    ) -> IntArray:
+        """Append ``len(t)`` nodes; return their indices."""
+        k = int(np.size(t))
+        self._reserve(k)
+        s = slice(self.n, self.n + k)
+        self.t[s] = t
+        self.parent[s] = parent
+        self.plot[s] = plot
+        self.sensor[s] = sensor
+        self.m[s] = m
+        self.P[s] = P
+        idx = np.arange(self.n, self.n + k, dtype=np.int64)
+        self.n += k
+        return idx
+
+    def chain(self, leaf: int) -> IntArray:
+        """Node indices from the root to ``leaf`` (inclusive), in time order."""
+        out = []
+        parent = self.parent
+        i = int(leaf)
+        while i >= 0:
+            out.append(i)
+            i = int(parent[i])
+        return np.asarray(out[::-1], dtype=np.int64)
+
+    def moments(self, idx: IntArray, q: float) -> tuple[Array, Array, Array, Array, Array]:
+        """Times, filtered and one-step predicted moments along a chain.
+
+        ``pred[0]`` is a copy of ``filt[0]``; ``pred[k]`` is the prediction of
+        ``filt[k-1]`` to ``time[k]`` (what the filter used at that step).
+        """
+        t = self.t[idx].copy()
+        fm = self.m[idx].copy()
+        fP = self.P[idx].copy()
+        pm = fm.copy()
+        pP = fP.copy()
+        if idx.size > 1:
+            dt = np.diff(t)
+            pm[1:], pP[1:] = kf_predict(
+                fm[:-1], fP[:-1], cv_transition_batch(dt), cv_process_noise_batch(dt, q)
+            )
+        return t, fm, fP, pm, pP
+
+    def compact(self, live: IntArray) -> IntArray:
+        """Drop nodes unreachable from ``live``; return the old-to-new index map (-1 = gone)."""
+        keep = np.zeros(self.n, bool)
+        frontier = np.unique(live[live >= 0])
+        parent = self.parent
+        while frontier.size:
+            keep[frontier] = True
+            p = parent[frontier]
+            p = p[p >= 0]
+            frontier = np.unique(p[~keep[p]])
+        old = np.flatnonzero(keep)
+        remap = np.full(self.n + 1, -1, np.int64)  # last slot maps parent -1 to -1
+        remap[old] = np.arange(old.size)
+        k = old.size
+        for name in ("t", "plot", "sensor", "m", "P"):
+            arr = getattr(self, name)
+            arr[:k] = arr[old]
+        self.parent[:k] = remap[self.parent[old]]
+        self.n = k
+        return remap[:-1]

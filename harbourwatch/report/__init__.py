@@ -1,0 +1,54 @@
+"""Self-contained offline HTML reports: the shift overview and one page per alert.
+
+The only part of harbourwatch that imports folium. Pages carry Leaflet
+(checked by SHA-256, see :mod:`._assets`), their styles, scripts and data
+inline and make no network request unless the user configured a tile server.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from ..config import RuleConfig, SensorConfig, ZoneConfig
+from ..feeds import PlotTable, Scan
+from ..rules import Alert
+from ..trajectories import TrajectorySet
+from ._page import CAUTION, write_atomic
+from .incident import incident_html
+from .overview import incident_name, overview_html
+
+__all__ = ["ReportInputs", "write_reports", "CAUTION", "incident_name"]
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class ReportInputs:
+    """Everything the reports show, as produced by one review run."""
+
+    trajectories: TrajectorySet
+    plots: PlotTable
+    scans: Sequence[Scan]
+    sensors: Sequence[SensorConfig]
+    zones: Sequence[ZoneConfig]
+    rules: Sequence[RuleConfig]
+    alerts: Sequence[Alert]
+    provenance: Mapping[str, Any]
+    tile_url: str | None = None
+
+
+def write_reports(out_dir: Path, inputs: ReportInputs) -> list[Path]:
+    """Write ``report.html`` and ``incidents/alert-NNNN.html`` (one per alert) under ``out_dir``.
+
+    Incident pages are numbered from 1 in the order of ``inputs.alerts``.
+    Each file is written to a temporary file in its folder and then moved
+    into place. Returns the written paths, overview first.
+    """
+    out_dir = Path(out_dir)
+    written = [write_atomic(out_dir / "report.html", overview_html(inputs))]
+    for i in range(len(inputs.alerts)):
+        written.append(
+            write_atomic(out_dir / "incidents" / incident_name(i), incident_html(inputs, i))
+        )
+    return written

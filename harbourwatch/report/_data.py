@@ -1,0 +1,234 @@
+"""Numbers behind the reports: drawn geometry, replay data, zone visits, scan gaps.
+
+Everything here works on the run's arrays and returns plain numbers or lists;
+no HTML. Drawn lines are simplified in the local frame (Douglas-Peucker,
+:data:`SIMPLIFY_TOLERANCE_M`); the replay is resampled to
+:data:`REPLAY_STEP_S`. Neither touches the CSV outputs.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import shapely
+from numpy.typing import NDArray
+
+from ..config import SensorConfig, ZoneConfig
+from ..feeds import Scan
+from ..trajectories import Trajectory, TrajectorySet
+
+__all__ = [
+    "SIMPLIFY_TOLERANCE_M",
+    "REPLAY_STEP_S",
+    "TRAIL_S",
+    "GAP_SCAN_PERIODS",
+    "track_latlon",
+    "replay_payload",
+    "ZoneVisits",
+    "zone_visits",
+    "vessels_present",
+    "ScanSeries",
+    "scan_series",
+    "state_index",
+]
+
+#: Tolerance of the line simplification of drawn trajectories, metres.
+SIMPLIFY_TOLERANCE_M = 5.0
+#: Time step of the replay data, seconds.
+REPLAY_STEP_S = 10.0
+#: Length of the replay trail behind each vessel marker, seconds.
+TRAIL_S = 300.0
+#: A radar with no scan for more than this many scan periods is shown as out.
+GAP_SCAN_PERIODS = 3.0
+#: As-seen estimates further apart than this many replay steps are not joined.
+AS_SEEN_MAX_GAP_STEPS = 3
+
+Array = NDArray[np.float64]
+
+
+def track_latlon(ts: TrajectorySet, traj: Trajectory, *, simplify: bool = True) -> Array:
+    """``(K, 2)`` lat/lon of the drawn line of ``traj`` (simplified in the local frame)."""
+    xy = traj.position
+    if simplify and xy.shape[0] > 2:
+        line = shapely.LineString(xy).simplify(SIMPLIFY_TOLERANCE_M, preserve_topology=False)
+        xy = np.asarray(line.coords, float)
+    lat, lon = ts.frame.to_wgs84(xy[:, 0], xy[:, 1])
+    return np.column_stack([lat, lon])
+
+
+def _encode(step: NDArray[np.int64], lat: Array, lon: Array) -> list[int]:
+    """Delta-encode ``(step, lat*1e5, lon*1e5)`` triples as one flat int list."""
+    q = np.column_stack([step, np.round(lat * 1e5), np.round(lon * 1e5)]).astype(np.int64)
+    d = np.diff(q, axis=0, prepend=np.zeros((1, 3), np.int64))
+    return [int(v) for v in d.ravel()]
+
+
+def replay_payload(ts: TrajectorySet) -> dict[str, object]:
+    """Compact replay data: per track, delta-encoded ``[t_s, lat_e5, lon_e5]`` triples.
+
+    ``t_s`` is whole seconds since ``feed_start``; ``lat_e5``/``lon_e5`` are
+    degrees times 1e5 rounded. The first triple is absolute, each later one
+    the difference to the previous.
+
+    ``hindsight`` holds the smoothed tracks linearly interpolated to the
+    :data:`REPLAY_STEP_S` grid (from ``feed_start``) inside each track's span.
+    ``as_seen`` holds, per track id, the last as-seen estimate in each grid
+    step (no interpolation; the page does not join points further apart
+    than ``max_gap`` steps). Coordinates are kept to 5 decimals (about 1 m).
+    """
+    t0 = ts.feed_start
+    step = REPLAY_STEP_S
+    hind: list[dict[str, object]] = []
+    for tr in ts.trajectories:
+        k0 = int(np.ceil((tr.start - t0) / step - 1e-9))
+        k1 = int(np.floor((tr.end - t0) / step + 1e-9))
+        ks = np.arange(k0, k1 + 1, dtype=np.int64)
+        tg = t0 + ks * step
+        # always keep the exact first and last state so short tracks show up
+        tq = np.unique(np.concatenate([[tr.start], tg, [tr.end]]))
+        kq = np.round(tq - t0).astype(np.int64)  # whole seconds from t0
+        e = np.interp(tq, tr.time, tr.mean[:, 0])
+        n = np.interp(tq, tr.time, tr.mean[:, 2])
+        lat, lon = ts.frame.to_wgs84(e, n)
+        keep = np.concatenate([[True], np.diff(kq) > 0])
+        hind.append({"id": tr.id, "p": _encode(kq[keep], lat[keep], lon[keep]),
+                     "live": bool(tr.alive_at_end)})
+    seen: list[dict[str, object]] = []
+    a = ts.as_seen
+    if a.time.size:
+        e_all, n_all = a.mean[:, 0], a.mean[:, 2]
+        lat_all, lon_all = ts.frame.to_wgs84(e_all, n_all)
+        kstep = np.floor((a.time - t0) / step + 1e-9).astype(np.int64)
+        ids = np.asarray(a.track).astype(str)
+        for tid in sorted(set(ids.tolist())):
+            rows = np.flatnonzero(ids == tid)
+            rows = rows[np.argsort(a.time[rows], kind="stable")]
+            k = kstep[rows]
+            last = np.concatenate([k[1:] != k[:-1], [True]])  # last estimate in each step
+            r = rows[last]
+            seen.append({"id": tid, "p": _encode(np.round(kstep[r] * step).astype(np.int64),
+                                                   lat_all[r], lon_all[r])})
+    return {
+        "t0": t0,
+        "t1": ts.feed_end,
+        "step": step,
+        "trail": TRAIL_S,
+        "max_gap": AS_SEEN_MAX_GAP_STEPS * step,
+        "hindsight": hind,
+        "as_seen": seen,
+    }
+
+
+@dataclass(frozen=True)
+class ZoneVisits:
+    """Visits of trajectories to one zone: one entry per contiguous inside run."""
+
+    zone: ZoneConfig
+    track: tuple[str, ...]
+    start: tuple[float, ...]
+    end: tuple[float, ...]
+
+    @property
+    def durations_min(self) -> list[float]:
+        return [(b - a) / 60.0 for a, b in zip(self.start, self.end, strict=True)]
+
+
+def zone_visits(ts: TrajectorySet, zones: Sequence[ZoneConfig],
+                latlon: dict[str, Array] | None = None) -> list[ZoneVisits]:
+    """Inside runs of every trajectory's smoothed states, per non-land zone.
+
+    A visit starts at the first state inside and ends at the last state
+    inside of a run (state resolution, no interpolation of the crossing).
+    """
+    pts: dict[str, Array] = {}
+    for tr in ts.trajectories:
+        if latlon is not None and tr.id in latlon:
+            pts[tr.id] = latlon[tr.id]
+        else:
+            lat, lon = ts.frame.to_wgs84(tr.mean[:, 0], tr.mean[:, 2])
+            pts[tr.id] = np.column_stack([lat, lon])
+    out: list[ZoneVisits] = []
+    for z in zones:
+        if z.kind.strip().lower() == "land":
+            continue
+        shapely.prepare(z.geometry)
+        tracks: list[str] = []
+        starts: list[float] = []
+        ends: list[float] = []
+        for tr in ts.trajectories:
+            ll = pts[tr.id]
+            inside = shapely.contains_xy(z.geometry, ll[:, 1], ll[:, 0])
+            if not inside.any():
+                continue
+            edges = np.diff(np.concatenate([[0], inside.astype(np.int8), [0]]))
+            for a, b in zip(np.flatnonzero(edges == 1), np.flatnonzero(edges == -1) - 1,
+                            strict=True):
+                tracks.append(tr.id)
+                starts.append(float(tr.time[a]))
+                ends.append(float(tr.time[b]))
+        out.append(ZoneVisits(z, tuple(tracks), tuple(starts), tuple(ends)))
+    return out
+
+
+def vessels_present(ts: TrajectorySet, step_s: float = 60.0) -> tuple[Array, Array]:
+    """Count of trajectories spanning each time of a ``step_s`` grid over the feed."""
+    t = np.arange(ts.feed_start, ts.feed_end + 1e-9, step_s)
+    if t.size == 0:
+        t = np.array([ts.feed_start])
+    starts = np.sort([tr.start for tr in ts.trajectories])
+    ends = np.sort([tr.end for tr in ts.trajectories])
+    n = np.searchsorted(starts, t, side="right") - np.searchsorted(ends, t, side="left")
+    return t, n.astype(float)
+
+
+@dataclass(frozen=True)
+class ScanSeries:
+    """Plots per scan of one radar, binned for drawing, and its outages."""
+
+    sensor: SensorConfig
+    t: Array  # bin centres
+    mean_plots: Array  # NaN where a bin has no scan
+    n_scans: int
+    gaps: list[tuple[float, float]]
+
+
+def scan_series(scans: Sequence[Scan], sensors: Sequence[SensorConfig], t0: float, t1: float,
+                max_bins: int = 360) -> list[ScanSeries]:
+    """Per sensor: mean plots per scan in up to ``max_bins`` bins, and gaps.
+
+    A gap is a stretch longer than :data:`GAP_SCAN_PERIODS` scan periods
+    with no scan, including before the first and after the last scan of the
+    sensor within ``[t0, t1]``.
+    """
+    out: list[ScanSeries] = []
+    span = max(t1 - t0, 1.0)
+    for si, s in enumerate(sensors):
+        ts = np.array([sc.time for sc in scans if sc.sensor == si], float)
+        npl = np.array([sc.plots.size for sc in scans if sc.sensor == si], float)
+        order = np.argsort(ts, kind="stable")
+        ts, npl = ts[order], npl[order]
+        limit = GAP_SCAN_PERIODS * s.scan_period_s
+        edges_t = np.concatenate([[t0], ts, [t1]])
+        d = np.diff(edges_t)
+        gaps = [(float(edges_t[i]), float(edges_t[i + 1])) for i in np.flatnonzero(d > limit)]
+        nb = int(min(max_bins, max(1, np.ceil(span / s.scan_period_s))))
+        bins = np.linspace(t0, t1, nb + 1)
+        idx = np.clip(np.searchsorted(bins, ts, side="right") - 1, 0, nb - 1)
+        cnt = np.bincount(idx, minlength=nb).astype(float)
+        tot = np.bincount(idx, weights=npl, minlength=nb)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            mean = np.where(cnt > 0, tot / np.maximum(cnt, 1), np.nan)
+        out.append(ScanSeries(s, 0.5 * (bins[:-1] + bins[1:]), mean, int(ts.size), gaps))
+    return out
+
+
+def state_index(traj: Trajectory, t: float) -> int:
+    """Index of the state of ``traj`` nearest in time to ``t``."""
+    i = int(np.searchsorted(traj.time, t))
+    if i <= 0:
+        return 0
+    if i >= traj.time.size:
+        return traj.time.size - 1
+    return i if traj.time[i] - t < t - traj.time[i - 1] else i - 1

@@ -1,0 +1,65 @@
+"""Escaping helpers: every user string passes through here before it reaches HTML.
+
+Three contexts occur in the reports:
+
+* HTML text and attribute values: :func:`esc` (``html.escape`` with quotes).
+* Text that folium pastes into a JavaScript template literal and Leaflet then
+  shows as HTML (``folium.Tooltip``): :func:`esc_tooltip` additionally turns
+  the backtick, ``$`` and backslash into character references so the literal
+  can neither be closed nor interpolated.
+* JSON inside ``<script>``: :func:`script_json` (ASCII only, ``<``, ``>``
+  and ``&`` as ``\\u`` escapes, so neither ``</script>`` nor ``<!--`` can
+  appear).
+"""
+
+from __future__ import annotations
+
+import html
+import json
+import math
+from typing import Any
+
+__all__ = ["esc", "esc_tooltip", "script_json", "fmt_duration", "fmt_prob"]
+
+
+def esc(text: object) -> str:
+    """HTML-escape ``text`` (``& < > " '``) for element content or attributes."""
+    return html.escape(str(text), quote=True)
+
+
+def esc_tooltip(text: object) -> str:
+    """Escape for folium's ``Tooltip`` (HTML inside a JS template literal)."""
+    return (
+        esc(text).replace("\\", "&#92;").replace("`", "&#96;").replace("$", "&#36;")
+    )
+
+
+def script_json(obj: Any) -> str:
+    """Compact JSON that is safe to place verbatim inside ``<script>``.
+
+    Examples
+    --------
+    >>> script_json({"a": "</script>"})
+    '{"a":"\\\\u003c/script\\\\u003e"}'
+    """
+    text = json.dumps(obj, ensure_ascii=True, separators=(",", ":"), allow_nan=False)
+    return text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
+
+
+def fmt_duration(seconds: float) -> str:
+    """``1 h 02 min 05 s`` style duration (rounded to the second)."""
+    s = int(round(max(seconds, 0.0)))
+    h, rem = divmod(s, 3600)
+    m, sec = divmod(rem, 60)
+    if h:
+        return f"{h} h {m:02d} min {sec:02d} s"
+    if m:
+        return f"{m} min {sec:02d} s"
+    return f"{sec} s"
+
+
+def fmt_prob(p: float) -> str:
+    """Probability with two decimals (``0.87``); ``n/a`` for NaN."""
+    if not math.isfinite(p):
+        return "n/a"
+    return f"{p:.2f}"

@@ -1,0 +1,105 @@
+"""The HTML document around a folium map: head with inlined assets, caution, body."""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+from ._assets import leaflet_css, leaflet_js, own_asset
+from ._html import esc
+from ._mapbase import MapParts
+
+__all__ = ["CAUTION", "document", "provenance_html", "write_atomic"]
+
+#: Shown at the top of every page, above the fold.
+CAUTION = (
+    "Decision support only. This report supports, and does not replace, qualified "
+    "watchkeepers and the competent authority. Not for navigation. Local regulations prevail."
+)
+
+
+def document(*, title: str, body: str, parts: MapParts, scripts: Sequence[str] = (),
+             data_blocks: Mapping[str, str] | None = None) -> str:
+    """A complete, self-contained HTML page.
+
+    ``body`` is our own (escaped) markup; ``parts`` the folium map pieces,
+    whose ``html`` must already be inside ``body`` (see :func:`map_slot`).
+    ``data_blocks`` maps element ids to JSON text (already script-safe) put
+    into ``<script type="application/json">`` blocks; ``scripts`` are names
+    of our own assets run after the map script.
+    """
+    data = "".join(
+        f'<script type="application/json" id="{esc(k)}">{v}</script>\n'
+        for k, v in (data_blocks or {}).items()
+    )
+    own = "".join(f"<script>\n{own_asset(name)}</script>\n" for name in scripts)
+    return (
+        "<!DOCTYPE html>\n"
+        '<html lang="en">\n<head>\n<meta charset="utf-8">\n'
+        f"<title>{esc(title)}</title>\n"
+        '<meta name="color-scheme" content="light">\n'
+        f"<style>\n{leaflet_css()}</style>\n"
+        f"<script>\n{leaflet_js()}</script>\n"
+        f"{parts.header}\n"
+        f"<style>\n{own_asset('report.css')}</style>\n"
+        "</head>\n<body>\n"
+        f'<p class="hw-caution" role="note" id="hw-caution">{esc(CAUTION)}</p>\n'
+        f"<main>\n{body}\n</main>\n"
+        f"<script>\n{parts.script}\n</script>\n"
+        f"{data}{own}"
+        "</body>\n</html>\n"
+    )
+
+
+def _scalar(v: Any) -> str:
+    if isinstance(v, float):
+        return esc(f"{v:.6g}")
+    return esc(v)
+
+
+def provenance_html(prov: Any, depth: int = 0) -> str:
+    """Render a nested mapping/list (run.json content) as escaped tables."""
+    if isinstance(prov, Mapping):
+        if not prov:
+            return "<em>none</em>"
+        rows = "".join(
+            f"<tr><th scope=\"row\">{esc(k)}</th><td>{provenance_html(v, depth + 1)}</td></tr>"
+            for k, v in prov.items()
+        )
+        return f'<table class="hw-prov">{rows}</table>'
+    if isinstance(prov, list | tuple):
+        if not prov:
+            return "<em>none</em>"
+        if all(isinstance(x, Mapping) for x in prov):
+            keys: list[str] = []
+            for x in prov:
+                keys.extend(k for k in x if k not in keys)
+            head = "".join(f"<th>{esc(k)}</th>" for k in keys)
+            rows = "".join(
+                "<tr>" + "".join(f"<td>{provenance_html(x.get(k, ''), depth + 1)}</td>"
+                                 for k in keys) + "</tr>"
+                for x in prov
+            )
+            return f'<table class="hw-prov"><thead><tr>{head}</tr></thead><tbody>{rows}</tbody></table>'
+        return ", ".join(provenance_html(x, depth + 1) for x in prov)
+    if prov is None:
+        return ""
+    return _scalar(prov)
+
+
+def write_atomic(path: Path, text: str) -> Path:
+    """Write ``text`` (UTF-8) to ``path`` via a temp file in the same folder + os.replace."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return path

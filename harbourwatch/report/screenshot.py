@@ -1,0 +1,85 @@
+"""Screenshots of written report pages with a local headless Chromium (optional).
+
+Uses the Python package ``playwright`` (test extra) driving the system's
+Chromium at :data:`CHROMIUM`; no browser is downloaded. With either missing,
+:func:`take_screenshots` returns an empty list. All network requests other
+than ``file:`` and ``data:`` URLs are blocked, so a screenshot also shows
+that the page works offline.
+"""
+
+from __future__ import annotations
+
+import os
+from concurrent.futures import ThreadPoolExecutor
+from pathlib import Path
+
+__all__ = ["CHROMIUM", "CHROMIUM_ARGS", "take_screenshots", "block_network"]
+
+CHROMIUM = "/usr/bin/chromium"
+CHROMIUM_ARGS = [
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--no-first-run",
+]
+
+
+def block_network(page, blocked: list[str] | None = None) -> None:  # type: ignore[no-untyped-def]
+    """Abort every request of ``page`` that is not a ``file:`` or ``data:`` URL."""
+
+    def handle(route) -> None:  # type: ignore[no-untyped-def]
+        url = route.request.url
+        if url.startswith(("file://", "data:")):
+            route.continue_()
+        else:
+            if blocked is not None:
+                blocked.append(url)
+            route.abort()
+
+    page.route("**/*", handle)
+
+
+def take_screenshots(out_dir: Path, *, max_incidents: int = 5) -> list[Path]:
+    """Screenshot ``report.html`` and the first incident pages under ``out_dir/screenshots``.
+
+    Returns the PNG paths written, or ``[]`` when Playwright or Chromium is
+    not available (reports themselves never depend on this).
+    """
+    out_dir = Path(out_dir)
+    if not os.access(CHROMIUM, os.X_OK):
+        return []
+    try:
+        from playwright.sync_api import sync_playwright
+    except ImportError:
+        return []
+    pages = [out_dir / "report.html"]
+    pages += sorted((out_dir / "incidents").glob("alert-*.html"))[:max_incidents]
+    pages = [p for p in pages if p.is_file()]
+    if not pages:
+        return []
+    shots = out_dir / "screenshots"
+    shots.mkdir(parents=True, exist_ok=True)
+    # Playwright's sync API refuses to run inside a running asyncio loop (a
+    # notebook, or another Playwright session): work in a thread of our own.
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        return pool.submit(_shoot, sync_playwright, pages, shots).result()
+
+
+def _shoot(sync_playwright, pages: list[Path], shots: Path) -> list[Path]:  # type: ignore[no-untyped-def]
+    written: list[Path] = []
+    with sync_playwright() as pw:
+        browser = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        try:
+            page = browser.new_page(viewport={"width": 1280, "height": 900})
+            block_network(page)
+            for src in pages:
+                page.goto(src.resolve().as_uri(), wait_until="load")
+                page.wait_for_selector(".folium-map .leaflet-overlay-pane svg", state="attached")
+                dest = shots / (src.stem + ".png")
+                page.screenshot(path=str(dest), full_page=True)
+                written.append(dest)
+        finally:
+            browser.close()
+    return written
