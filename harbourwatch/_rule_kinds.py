@@ -162,8 +162,9 @@ def fmt_duration(seconds: float) -> str:
 
 
 def fmt_span(t0: float, t1: float) -> str:
-    """``"06:12-06:36 UTC"``."""
-    return f"{format_clock(t0)}-{format_clock(t1)} UTC"
+    """``"06:12-06:36 UTC"``; with seconds for spans under five minutes."""
+    sec = t1 - t0 < 300.0
+    return f"{format_clock(t0, seconds=sec)}-{format_clock(t1, seconds=sec)} UTC"
 
 
 def fmt_number(x: float) -> str:
@@ -326,9 +327,11 @@ class PassThrough(RuleKind):
 
     def describe(self, view: EpisodeView) -> tuple[str, Mapping[str, Any]]:
         d = self.entry_exit(view)
+        sec = d["exit_time"] - d["entry_time"] < 300.0
         text = (
-            f"vessel {view.track} crossed {self.zone_name}, entered {format_clock(d['entry_time'])}"
-            f" and left {format_clock(d['exit_time'])} UTC, probability {view.probability:.2f}"
+            f"vessel {view.track} crossed {self.zone_name}, entered "
+            f"{format_clock(d['entry_time'], seconds=sec)} and left "
+            f"{format_clock(d['exit_time'], seconds=sec)} UTC, probability {view.probability:.2f}"
         )
         return text, d
 

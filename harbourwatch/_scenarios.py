@@ -160,7 +160,7 @@ def _demo_vessels() -> list[VesselPlan]:
     v.append(_plan("fishing-1", 300, _N, -2500, 0, 6,
                    [_go(_N, 300, 6), _go(0, 700, 4), Leg.speed(0.8, 60), _go(-400, 760, 0.8),
                     _go(-300, 980, 0.8), _go(0, 1150, 3)],
-                   "drifts ~25 min below 1.5 kn in the inner basin (basin-loiter: caught)"))
+                   "drifts ~24 min below 1.5 kn in the inner basin (basin-loiter: caught)"))
     v.append(_plan("leisure-1", 600, *_MARINA, 80, 1.0,
                    [_go(-950, 380, 1.0), _go(1200, 400, 5), _go(_S, -300, 5), _go(_S, -3500, 6.5),
                     _go(-3800, -3500, 6.5), _go(-3800, -16000, 6.5)],

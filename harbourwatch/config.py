@@ -124,8 +124,11 @@ class FilterSettings:
     n_scan
         Track-oriented N-scan pruning depth (scans of the same sensor).
     max_coast_s
-        A hypothesis with no new state for this long (outside every cover)
-        is taken as ended.
+        A hypothesis with no new state for this long (outside every cover,
+        or its radars silent) is taken as ended.
+    max_coast_sd_m
+        A hypothesis whose predicted position standard deviation exceeds
+        this (m) is taken as ended (it has coasted too long to re-acquire).
     min_empty_scan_clutter
         A scan with no plot at all from a radar expected to give at least
         this many false plots per scan is taken as an outage and skipped.
@@ -147,6 +150,7 @@ class FilterSettings:
     max_local_hypotheses: int = 30
     n_scan: int = 4
     max_coast_s: float = 1800.0
+    max_coast_sd_m: float = 500.0
     min_empty_scan_clutter: float = 3.0
     as_seen_window_s: float = 15.0
 

@@ -1,30 +1,39 @@
 """Geofence rules over whole trajectories, with a probability on every alert.
 
-How an alert is found (see :mod:`harbourwatch._rule_kinds` for the kinds):
+How an alert is found (see :mod:`harbourwatch._rule_kinds` for the kinds and
+the episode convention; brief excursions up to ``GAP_TOLERANCE_S`` = 30 s do
+not split an episode):
 
-1. **Candidate windows.** On each smoothed trajectory (for ``rendezvous``: each
-   pair whose slow, near-zone parts overlap in time and in bounding box) a
-   relaxed condition marks the states where the rule could hold within
-   :data:`~harbourwatch._rule_kinds.NEAR_MISS_SD` standard deviations. Its runs
-   (merged across gaps of up to ``GAP_TOLERANCE_S``, long enough for the rule)
-   grown by :data:`WINDOW_PAD_S` on both sides are the windows worth sampling.
-   A trajectory whose bounding box is far from the zone is skipped outright.
-2. **Episodes.** In each window, the strict condition is evaluated on the
+1. **Candidate windows.** On each smoothed trajectory a relaxed condition
+   marks the states where the rule could hold within ``NEAR_MISS_SD`` = 4
+   standard deviations (of position for zones and distances, of velocity for
+   speed thresholds), so near misses are evaluated too. Its runs (merged
+   across the same gaps, at least as long as the rule's minimum duration),
+   grown by :data:`WINDOW_PAD_S` on both sides, are the windows worth
+   sampling. A trajectory whose bounding box is far from the zone is skipped
+   outright. For ``rendezvous`` the pairs come from a search per
+   :data:`PAIR_BIN_S` time bin over bounding boxes of the states that may be
+   slow (and near the zone); only those bins are looked at closely, with the
+   second trajectory interpolated linearly onto the first one's state times
+   (the first is the one whose id sorts first).
+2. **Episodes.** In each window the strict condition is evaluated on the
    smoothed mean and on ``n_samples`` joint draws of the window
-   (:func:`sample_window`). Each mean episode gets the fraction of draws that
-   have an episode overlapping it in time. A window with draws showing
-   episodes but no mean episode yields one episode whose start and end are
-   the medians over the draws (each draw's longest episode).
+   (:func:`sample_window`, exact windowed FFBS). Each episode of the mean gets
+   the fraction of draws having an episode that overlaps it in time; draws'
+   episodes overlapping no mean episode are then ignored. A window with no
+   mean episode but with episodes in some draws yields one episode from the
+   draws: start and end are the medians, over the draws that have one, of
+   each draw's longest episode.
 3. **Probability** = existence (times the other's existence for pairs) times
    that fraction. An alert is raised when it is at least the rule's
-   ``min_probability`` (and above zero).
+   ``min_probability`` and above zero.
 
 Monte-Carlo error: the fraction is binomial, its sd is at most
 ``0.5 / sqrt(n_samples)``, i.e. 0.035 at the default 200 draws.
 
 Determinism: draws come from a generator per (rule, track[, other track])
 spawned from the run seed with :class:`numpy.random.SeedSequence` keyed on
-hashes of the ids, so results do not depend on evaluation order.
+SHA-256 hashes of the ids, so results do not depend on evaluation order.
 """
 
 from __future__ import annotations
@@ -86,6 +95,8 @@ DEFAULT_SAMPLES = 200
 #: Seconds added before and after each candidate run before sampling, so
 #: that a crossing's "outside before / after" states are part of the window.
 WINDOW_PAD_S = 60.0
+#: Steps of backward sampling whose noise is drawn at once (bounds memory).
+_SAMPLE_BLOCK = 256
 #: Time bin of the rendezvous pair search, seconds.
 PAIR_BIN_S = 300.0
 #: Columns of ``alerts.csv``, in order (the file contract).
@@ -98,14 +109,22 @@ ALERT_COLUMNS = (
 class Alert:
     """One raised alert: one episode of one rule for one trajectory (or pair).
 
-    ``start``/``end`` are epoch seconds. ``details`` holds kind-specific
-    extras in local-frame SI units (e.g. ``entry_time``, ``entry_xy``,
-    ``exit_time``, ``exit_xy``, ``closest_time``, ``min_distance_m``), used by
-    the reports. Every alert also has ``zone`` (id or ``None``),
-    ``index_range`` (``(i0, i1)`` state indices of ``track``),
-    ``other_index_range`` (pairs only), ``existence``, ``sample_fraction``,
-    ``n_samples`` and ``source`` (``"mean"`` when the episode was found on
-    the smoothed mean, ``"samples"`` when only in the draws).
+    ``start``/``end`` are epoch seconds: the first and last state time of
+    the episode. ``details`` holds extras in local-frame SI units (epoch
+    seconds, metres, m/s), for the reports:
+
+    * every alert: ``zone`` (id or ``None``), ``index_range`` (``(i0, i1)``
+      state indices of ``track``), ``existence``, ``sample_fraction``,
+      ``n_samples``, ``source`` (``"mean"`` when the episode was found on the
+      smoothed mean, ``"samples"`` when only in the draws);
+    * ``pass-through`` and ``entry``: ``entry_time``, ``entry_xy``,
+      ``exit_time``, ``exit_xy`` (first and last state inside);
+    * ``loiter``: ``duration_s``, ``max_speed_m_s``;
+    * ``speed``: ``duration_s``, ``max_speed_m_s``, ``max_speed_kn``,
+      ``max_speed_time``;
+    * ``rendezvous``: ``other_index_range``, ``other_existence``,
+      ``duration_s``, ``closest_time``, ``min_distance_m``, ``closest_xy``,
+      ``other_closest_xy``.
     """
 
     rule: str
@@ -155,11 +174,14 @@ def sample_window(traj: Trajectory, rng: np.random.Generator, n: int, i0: int, i
         L = _cholesky_batch(Pf - G @ Pp @ Gt)
         # everything but the dependence on x_k+1, for all k at once
         shift = traj.filt_mean[i0:i1] - (G @ traj.pred_mean[i0 + 1 : i1 + 1, :, None])[..., 0]
-        z = rng.standard_normal((w - 1, n, 4))
-        base = shift[:, None, :] + z @ np.swapaxes(L, -1, -2)
-        for k in range(w - 2, -1, -1):
-            np.matmul(out[k + 1], Gt[k], out=out[k])
-            out[k] += base[k]
+        Lt = np.swapaxes(L, -1, -2)
+        # blocks of steps, latest first, so the noise never needs O(W n) memory at once
+        for b1 in range(w - 1, 0, -_SAMPLE_BLOCK):
+            b0 = max(b1 - _SAMPLE_BLOCK, 0)
+            base = shift[b0:b1, None, :] + rng.standard_normal((b1 - b0, n, 4)) @ Lt[b0:b1]
+            for k in range(b1 - 1, b0 - 1, -1):
+                np.matmul(out[k + 1], Gt[k], out=out[k])
+                out[k] += base[k - b0]
     return np.swapaxes(out, 0, 1)
 
 

@@ -34,6 +34,10 @@ than the cut-off. Minutes are integrated over the grid with trapezoid weights
   estimate between consecutive matched steps, summed. A break that resumes on
   another track counts as one break and one swap.
 
+Every row of ``tracks.csv`` is part of the estimate: the ``existence`` and
+``sd_m`` columns are not used (the run already chose which trajectories to
+report).
+
 Plots: :func:`write_score_plot` writes ``.html`` (a page with inline SVG, no
 scripts, no network) or ``.svg``; other suffixes (``.png`` included) raise
 :class:`~harbourwatch.errors.InputError`, to avoid a plotting dependency.
@@ -366,7 +370,7 @@ def _engineer_figures(
         "rms_position_error_m": float(np.sqrt((err**2).mean())) if err.size else None,
         "mean_speed_error_kn": float(dspeed.mean()) if dspeed.size else None,
         "mean_course_error_deg": float(np.degrees(dcourse.mean())) if dcourse.size else None,
-        "coverage_percent": (100.0 * float((matched * w).sum()) / 60.0 / truth_min
+        "coverage_percent": (100.0 * float((matched * w).sum()) / float((ex * w).sum())
                              if truth_min > 0 else None),
         "missed_vessel_min": missed_min,
         "false_track_min": false_min,
@@ -409,11 +413,13 @@ def _svg_chart(report: ScoreReport) -> str:
         y = float(sy(v))
         out.append(f'<line x1="{ml}" x2="{ml + pw}" y1="{y:.1f}" y2="{y:.1f}" stroke="#ddd"/>'
                    f'<text x="{ml - 4}" y="{y + 4:.1f}" text-anchor="end">{v:g}</text>')
-    for k in range(6):
-        tv = t0 + (t1 - t0) * k / 5
+    tick = next((s for s in (10, 30, 60, 120, 300, 600, 900, 1800, 3600, 7200, 21600)
+                 if (t1 - t0) / s <= 8), 86400)
+    for tv in np.arange(math.ceil(t0 / tick) * tick, t1 + 1e-6, tick):
         x = float(sx(tv))
-        out.append(f'<text x="{x:.1f}" y="{mt + ph + 16}" text-anchor="middle">'
-                   f"{format_utc_one(tv)[11:19]}</text>")
+        label = format_utc_one(float(tv))[11:19 if tick < 60 else 16]
+        out.append(f'<line x1="{x:.1f}" x2="{x:.1f}" y1="{mt}" y2="{mt + ph}" stroke="#eee"/>'
+                   f'<text x="{x:.1f}" y="{mt + ph + 16}" text-anchor="middle">{label}</text>')
     out.append(f'<text x="{ml + pw:.0f}" y="{H_ - 6:.0f}" text-anchor="end">time (UTC)</text>'
                f'<text x="14" y="{mt + ph / 2:.0f}" text-anchor="middle" '
                f'transform="rotate(-90 14 {mt + ph / 2:.0f})">metres</text>')
@@ -448,15 +454,12 @@ def write_score_plot(report: ScoreReport, path: str | PathLike[str]) -> None:
     if suffix == ".svg":
         text = '<?xml version="1.0" encoding="UTF-8"?>\n' + svg + "\n"
     else:
-        rows = "".join(
-            f"<tr><th>{html.escape(str(k))}</th><td>{html.escape(str(v))}</td></tr>"
-            for k, v in report.as_dict().items() if k != "per_truth")
         text = ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
                 "<title>harbourwatch score</title>"
                 "<style>body{font-family:sans-serif;max-width:800px;margin:1em auto}"
-                "th{text-align:left;padding-right:1em}td,th{font-size:13px}</style></head>"
+                "pre{font-size:13px}</style></head>"
                 f"<body><h1>Score</h1><p>{html.escape(report.tracks_path)} against "
-                f"{html.escape(report.truth_path)}</p>{svg}<table>{rows}</table>"
+                f"{html.escape(report.truth_path)}</p>{svg}<pre>{html.escape(report.as_table())}</pre>"
                 "<p>Accuracy figures support, and never replace, qualified watchkeepers "
                 "and the competent authority.</p></body></html>\n")
     folder = p.parent if str(p.parent) else Path(".")

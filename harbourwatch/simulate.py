@@ -283,6 +283,10 @@ class SimulationResult:
     def end_epoch_s(self) -> float:
         return self.scenario.start_epoch_s + self.scenario.duration_s
 
+
+# --------------------------------------------------------------------------- simulation
+
+
 def simulate(scenario: Scenario, seed: int) -> SimulationResult:
     """Simulate a scenario: plots of every sensor and the vessels' truth.
 
@@ -293,6 +297,8 @@ def simulate(scenario: Scenario, seed: int) -> SimulationResult:
     seed
         Seed of the numpy generator; the same seed gives identical arrays.
     """
+    if not scenario.sensors:
+        raise ValueError("a scenario needs at least one sensor")
     children = np.random.SeedSequence(seed).spawn(len(scenario.sensors))
     sites = [(s.config.lat_deg, s.config.lon_deg, s.config.max_range_m) for s in scenario.sensors]
     truths = tuple(_vessel_truth(p, scenario, sites) for p in scenario.vessels)
@@ -301,7 +307,7 @@ def simulate(scenario: Scenario, seed: int) -> SimulationResult:
         part, north = _sensor_plots(si, sim, truths, scenario, np.random.default_rng(ss))
         parts.append(part)
         norths.append(north)
-    col = {k: np.concatenate([p[k] for p in parts]) for k in parts[0]} if parts else {}
+    col = {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
     t = np.round(col["time"] * 1000.0) / 1000.0
     order = np.lexsort((col["lon"], col["lat"], col["sensor"], t))
     sensor = col["sensor"][order].astype(np.int64)
@@ -323,6 +329,7 @@ def simulate(scenario: Scenario, seed: int) -> SimulationResult:
     return SimulationResult(scenario=scenario, seed=seed,
                             sensors=tuple(s.config for s in scenario.sensors),
                             plots=plots, truth=truths, north_times=tuple(norths))
+
 
 _FEED_FORMATS = ("csv", "csv.gz", "parquet")
 

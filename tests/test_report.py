@@ -348,3 +348,45 @@ def test_nice_ticks_are_round_and_inside(lo: float, width: float, n: int) -> Non
         assert np.allclose(steps, steps[0], rtol=1e-6)
         mant = steps[0] / 10 ** np.floor(np.log10(steps[0]))
         assert any(abs(mant - m) < 1e-6 for m in (1, 2, 5, 10))
+
+
+def test_six_hour_shift_stays_small(tmp_path: Path) -> None:
+    # 250 trajectories over 6 h, about 2,250 states each at a 2.5 s scan period
+    inputs = make_inputs(n_tracks=250, hours=6.0, outage=(7200.0, 7800.0))
+    assert sum(tr.time.size for tr in inputs.trajectories) > 500_000
+    paths = write_reports(tmp_path, inputs)
+    size = paths[0].stat().st_size
+    assert size < 5_000_000, size  # the stated bound for the overview (DESIGN.md)
+    text = paths[0].read_text("utf-8")
+    assert text.count('"className": "hw-traj') == 250
+
+
+def test_empty_shift_and_dangling_alert(tmp_path: Path) -> None:
+    from dataclasses import replace
+
+    from harbourwatch.trajectories import AsSeenTable, TrajectorySet
+
+    base = make_inputs(n_tracks=3)
+    one = base.trajectories.trajectories[0]
+    single = replace(one, id="T9999", time=one.time[:1], mean=one.mean[:1], cov=one.cov[:1],
+                     plot_ids=one.plot_ids[:1])
+    ts = TrajectorySet(trajectories=(single,), frame=base.trajectories.frame,
+                       as_seen=AsSeenTable.empty(), feed_start=T0, feed_end=T0 + 60.0)
+    alert = replace(base.alerts[1], track="T-missing", other_track="")
+    inputs = replace(base, trajectories=ts, scans=[], alerts=[alert], provenance={})
+    paths = write_reports(tmp_path, inputs)
+    assert len(paths) == 2
+    text = paths[0].read_text("utf-8")
+    assert text.count('"className": "hw-traj') == 1 and "T-missing" in text
+    empty = replace(inputs, trajectories=replace(ts, trajectories=()), alerts=[], sensors=[])
+    (page,) = write_reports(tmp_path / "empty", empty)
+    assert "No alerts were raised" in page.read_text("utf-8")
+
+
+def test_screenshots_skipped_without_browser(monkeypatch: pytest.MonkeyPatch,
+                                             written: tuple[Path, list[Path]]) -> None:
+    from harbourwatch.report import screenshot
+
+    monkeypatch.setattr(screenshot, "CHROMIUM", "/nonexistent/chromium")
+    assert screenshot.take_screenshots(written[0]) == []
+    assert not (written[0] / "screenshots").exists()

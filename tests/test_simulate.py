@@ -31,6 +31,7 @@ from harbourwatch.simulate import (
     SimulationResult,
     VesselPlan,
     arpa_sigmas,
+    plots_columns,
     sensors_to_toml,
     simulate,
     simulate_to_dir,
@@ -408,3 +409,76 @@ def test_demo_cases_on_truth(demo_truth: tuple[SimulationResult, dict]) -> None:
     arrivals = [v for v in res.truth if v.time[0] > res.start_epoch_s]
     departures = [v for v in res.truth if v.time[-1] < res.end_epoch_s]
     assert len(names) >= 24 and len(arrivals) >= 5 and len(departures) >= 5
+
+
+def test_demo_only_one_meeting(demo_truth: tuple[SimulationResult, dict]) -> None:
+    # no other pair of vessels is within 150 m, both below 3 kn, for 10 minutes
+    res, _ = demo_truth
+    f = LocalFrame(57.5, -30.0)
+    kn = KNOT_M_S
+    grid = np.arange(res.start_epoch_s, res.end_epoch_s, 10.0)
+    pos = []
+    for v in res.truth:
+        alive = (grid >= v.time[0]) & (grid <= v.time[-1])
+        e, n = f.to_local(np.interp(grid, v.time, v.lat_deg), np.interp(grid, v.time, v.lon_deg))
+        slow = alive & (np.interp(grid, v.time, v.speed_m_s) < 3 * kn)
+        pos.append((e, n, slow))
+    pairs = []
+    for i in range(len(pos)):
+        for j in range(i + 1, len(pos)):
+            ei, ni, si = pos[i]
+            ej, nj, sj = pos[j]
+            close = si & sj & (np.hypot(ei - ej, ni - nj) < 150.0)
+            if _longest_run_s(close, grid) >= 600.0:
+                pairs.append({res.truth[i].name, res.truth[j].name})
+    assert pairs == [{"fishing-3", "leisure-3"}]
+
+
+def test_geometry_scenarios() -> None:
+    f = LocalFrame(57.5, -30.0)
+
+    def local(v):  # noqa: ANN001, ANN202 - test helper
+        return f.to_local(v.lat_deg, v.lon_deg)
+
+    res = simulate(SCENARIOS["crossing45"].build(1, None), seed=1)
+    a, b = res.truth
+    ea, na = local(a)
+    eb, nb = local(b)
+    d = np.hypot(ea - eb, na - nb)
+    k = int(np.argmin(d))
+    # sampled every second at a closing speed of 3.2 m/s: within a few metres at 600 s
+    assert d[k] < 5.0 and abs(a.time[k] - res.start_epoch_s - 600.0) < 2.0
+    cross = abs(((a.course_deg[k] - b.course_deg[k]) + 180) % 360 - 180)
+    assert cross == pytest.approx(45.0, abs=0.2)
+    res = simulate(SCENARIOS["parallel120"].build(1, None), seed=1)
+    a, b = res.truth
+    ea, na = local(a)
+    eb, nb = local(b)
+    d = np.hypot(ea - eb, na - nb)
+    # two eastward geodesics 120 m apart converge by about a metre over 3.7 km
+    assert np.all(np.abs(d - 120.0) < 2.0) and (a.time[-1] - a.time[0]) >= 1200.0
+
+
+def test_bench_keeps_about_forty_vessels() -> None:
+    res = simulate(SCENARIOS["bench"].build(3, 1800.0), seed=3)
+    grid = np.arange(res.start_epoch_s, res.end_epoch_s, 30.0)
+    alive = np.array([sum(1 for v in res.truth if v.time.size and v.time[0] <= t <= v.time[-1])
+                      for t in grid])
+    assert 34 <= alive.min() and alive.max() <= 44
+    assert [s.false_plots_per_scan for s in res.sensors] == [15.0, 15.0]
+
+
+def test_sigma_m_column() -> None:
+    sc = _stats_scenario(120.0)
+    sim = SimSensor(config=sc.sensors[0].config, emit_sigma_m=True)
+    sc = Scenario(name="s", start_epoch_s=START, duration_s=120.0, sensors=(sim,),
+                  vessels=sc.vessels)
+    res = simulate(sc, seed=1)
+    cols = plots_columns(res)
+    assert list(cols) == ["time", "sensor", "lat", "lon", "scan", "sigma_m"]
+    vessel = res.plots.vessel >= 0
+    r, _ = _measured(res, vessel)
+    cfg = sim.config
+    expected = np.sqrt(0.5 * (cfg.range_sigma_m**2 + (r * math.radians(cfg.bearing_sigma_deg)) ** 2))
+    np.testing.assert_allclose(res.plots.sigma_m[vessel], expected, atol=0.006)
+    assert "sigma_m" not in plots_columns(simulate(_stats_scenario(60.0), seed=1))

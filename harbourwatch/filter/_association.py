@@ -22,7 +22,8 @@ from .assignment import kbest_assignments
 
 IntArray = NDArray[np.int64]
 Array = NDArray[np.float64]
-LOG_TINY = math.log(1e-300)
+#: Groups with more plots than this get one child per parent (the best assignment).
+LARGE_GROUP_PLOTS = 40
 
 
 def logsumexp(x: Array) -> float:
@@ -97,6 +98,11 @@ def update_group(
             count_cap("merged_hypotheses")
         logw = logw - logsumexp(logw)
     nb, mg = len(berns), len(plots)
+    if mg > LARGE_GROUP_PLOTS and logw.size > 1:
+        # a squall of plots: only the best parent, and only its best child (below)
+        count_cap("large_group")
+        best = int(np.argmax(logw))
+        table, logw = table[best : best + 1], np.zeros(1)
     jloc = {j: i for i, j in enumerate(plots)}
     new_lhs: list[list[LocalHyp]] = [[] for _ in range(nb)]
     keys: list[dict[tuple[int, int], int]] = [{} for _ in range(nb)]
@@ -130,6 +136,10 @@ def update_group(
             children = [(float(-ctx.ln_new[plots].sum()), list(range(nb, nb + mg)))]
         else:
             k = max(1, math.ceil(max_hyp * math.exp(logw[g])))
+            if mg > LARGE_GROUP_PLOTS:
+                if k > 1:
+                    count_cap("large_group")
+                k = 1
             children = [(c, a.tolist()) for c, a in _children(C, k)]
         for cost, cols in children:
             took = {c: j for j, c in enumerate(cols) if c < nb}

@@ -23,10 +23,13 @@ Approximations (documented for review):
   ``blockdiag(R, σ_v² I)``);
 * the detection probability of a hypothesis is ``p_D`` times the
   probability that its predicted position is inside the radar's range
-  (a soft edge; the same as ``p_D`` at the predicted mean away from it);
+  (a soft edge; the same as ``p_D`` at the predicted mean away from it;
+  below 1 % of ``p_D`` it is taken as 0);
 * gating with the chi-square gate of ``gate_probability`` (2 dof);
-* hypotheses whose alive probability drops below ``1e-4``, or whose last
-  node is older than ``max_coast_s``, are frozen as ended;
+* hypotheses whose alive probability drops below ``1e-4``, whose last
+  node is older than ``max_coast_s`` or whose predicted position sd exceeds
+  ``max_coast_sd_m`` (out of every cover, or the radars silent) are frozen
+  as ended at their last state;
 * a scan without a single plot from a radar that should see
   ``min_empty_scan_clutter`` or more false plots per scan is taken as a
   radar outage and skipped (a working radar essentially never returns an
@@ -154,21 +157,26 @@ class _Filter:
         n = len(lhs)
         node_idx = np.fromiter((lh.node for lh in lhs), np.int64, n)
         t_leaf = self.nodes.t[node_idx]
-        coast = (tk - t_leaf) > st.max_coast_s
-        if coast.any():
-            for s in np.flatnonzero(coast):
-                lhs[s].freeze()
-                lhs[s].slot = -1
         leaf_m = self.nodes.m[node_idx]
         leaf_P = self.nodes.P[node_idx]
         tmiss = np.maximum(tk, t_leaf + _MIN_STEP_S)
         dt = tmiss - t_leaf
         pm, pP = kf_predict(leaf_m, leaf_P, cv_transition_batch(dt), cv_process_noise_batch(dt, self.q))
         ps = np.exp(-dt / st.mean_lifetime_s)
+        # hypotheses that have coasted too long (out of every cover, or radars silent) end
+        coast = (tk - t_leaf > st.max_coast_s) | (
+            np.maximum(pP[:, 0, 0], pP[:, 2, 2]) > st.max_coast_sd_m**2
+        )
+        if coast.any():
+            for s in np.flatnonzero(coast):
+                lhs[s].freeze()
+                lhs[s].slot = -1
         pd = np.where(coast, 0.0, _cover_detection(pm, pP, sensor))
+        # a missed detection makes a node only where the predicted mean is inside the range
+        hard = np.hypot(pm[:, 0] - sensor.site[0], pm[:, 2] - sensor.site[1]) <= sensor.max_range_m
         r = np.fromiter((lh.r for lh in lhs), float, n)
         alive = np.fromiter((lh.alive for lh in lhs), float, n)
-        alive_pred = alive * ps
+        alive_pred = np.where(hard, alive * ps, alive)
         w_miss = 1.0 - r * pd * alive_pred
         ln_miss = np.log(np.maximum(w_miss, 1e-300))
         self.timers["predict"] += _time.perf_counter() - t0
@@ -204,6 +212,12 @@ class _Filter:
             s = old.slot
             if s < 0 or pd[s] <= 0.0:
                 return old
+            if not hard[s]:  # just outside the cover: reweight, no new state
+                r2, al2, endp2, _ = miss_update(old.r, old.alive, old.end_p, float(pd[s]))
+                child = LocalHyp(old.node, r2, al2, old.end_nodes, endp2)
+                if al2 < ALIVE_FLOOR:
+                    child.freeze()
+                return child
             if s not in miss_node:
                 miss_node[s] = base + len(pend)
                 pend.append(("miss", s, old.node))
@@ -442,7 +456,7 @@ def _cover_detection(pm: Array, pP: Array, sensor: SensorModel) -> Array:
     ue, un = de / safe, dn / safe
     var = ue * ue * pP[:, 0, 0] + 2 * ue * un * pP[:, 0, 2] + un * un * pP[:, 2, 2]
     inside = ndtr((sensor.max_range_m - rho) / np.sqrt(np.maximum(var, 1e-12)))
-    return np.where(inside > 1e-6, sensor.detection_probability * inside, 0.0)
+    return np.where(inside >= 0.01, sensor.detection_probability * inside, 0.0)
 
 
 def _batch_update(mp: Array, Pp: Array, nu: Array, S: Array, R: Array) -> tuple[Array, Array]:

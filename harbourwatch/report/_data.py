@@ -76,7 +76,7 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
     :data:`REPLAY_STEP_S` grid (from ``feed_start``) inside each track's span.
     ``as_seen`` holds, per track id, the last as-seen estimate in each grid
     step (no interpolation; the page does not join points further apart
-    than ``max_gap`` steps). Coordinates are kept to 5 decimals (about 1 m).
+    than ``max_gap`` seconds). Coordinates are kept to 5 decimals (about 1 m).
     """
     t0 = ts.feed_start
     step = REPLAY_STEP_S

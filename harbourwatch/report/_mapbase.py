@@ -148,7 +148,10 @@ def render_parts(m: folium.Map) -> MapParts:
     assert isinstance(fig, Figure)
     _renumber(fig)
     fig.render()
-    header = fig.header.render()
+    # folium's viewport meta forbids zooming the page: allow it (accessibility)
+    header = re.sub(r'<meta name="viewport"[^>]*>',
+                    '<meta name="viewport" content="width=device-width, initial-scale=1">',
+                    fig.header.render())
     if _EXTERNAL.search(header):
         # a folium element brought its own CDN link: refuse rather than ship it
         raise HarbourwatchError("internal: a map element requires an external resource")

@@ -64,9 +64,16 @@ def nice_ticks(lo: float, hi: float, n: int = 5) -> list[float]:
         return [lo]
     raw = (hi - lo) / max(n, 1)
     mag = 10 ** math.floor(math.log10(raw))
-    step = next(s * mag for s in (1, 2, 5, 10) if s * mag >= raw)
-    first = math.ceil(lo / step - 1e-9) * step
-    return [round(first + i * step, 10) for i in range(int((hi - first) / step + 1e-9) + 1)]
+    steps = [m * mag for m in (0.1, 0.2, 0.5, 1, 2, 5, 10)]
+    k = next(i for i, st in enumerate(steps) if st >= raw)
+    while True:
+        step = steps[k]
+        first = math.ceil(lo / step - 1e-9) * step
+        count = math.floor((hi - first) / step + 1e-9) + 1
+        if count >= 2 or k == 0:
+            break
+        k -= 1  # a coarse step can miss the range entirely: take the next finer one
+    return [round(first + i * step, 10) for i in range(max(count, 0))] or [lo]
 
 
 def _time_ticks(t0: float, t1: float) -> list[float]:
