@@ -27,7 +27,9 @@ def atomic_open(path: str | os.PathLike[str], mode: str = "w", **kwargs: object)
     try:
         with open(tmp, mode, **kwargs) as fh:  # type: ignore[call-overload]
             yield fh
-        os.chmod(tmp, 0o644)
+        mask = os.umask(0)
+        os.umask(mask)
+        os.chmod(tmp, 0o666 & ~mask)  # mkstemp makes 0600; give the usual file mode
         os.replace(tmp, target)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):

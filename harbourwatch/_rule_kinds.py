@@ -20,6 +20,7 @@ not split it). The duration of an episode is ``time[i1] - time[i0]``.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -498,5 +499,6 @@ def validate_rules(rules: Sequence[RuleConfig], zones: Sequence[ZoneConfig]) -> 
             if isinstance(v, bool) or not isinstance(v, int | float) or not np.isfinite(v):
                 raise err(f"expected a number, found {v!r}", spec.name)
             if not spec.min_value <= v <= spec.max_value:
-                raise err(f"expected a value between {spec.min_value:g} and "
-                          f"{spec.max_value:g}, found {v!r}", spec.name)
+                want = (f"at least {spec.min_value:g}" if math.isinf(spec.max_value) else
+                        f"between {spec.min_value:g} and {spec.max_value:g}")
+                raise err(f"expected a number {want}, found {v!r}", spec.name)

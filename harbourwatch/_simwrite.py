@@ -7,7 +7,6 @@ import io
 import json
 import math
 import os
-import tempfile
 from collections.abc import Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -15,6 +14,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 from numpy.typing import NDArray
 
+from ._io import atomic_write_bytes
 from .config import SensorConfig
 from .timefmt import format_utc
 
@@ -52,17 +52,7 @@ def sensors_to_toml(sensors: Sequence[SensorConfig]) -> str:
 
 
 def _write_atomic(path: Path, data: bytes) -> None:
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as f:
-            f.write(data)
-        mask = os.umask(0)
-        os.umask(mask)
-        os.chmod(tmp, 0o666 & ~mask)  # mkstemp makes 0600; give the usual file mode
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    atomic_write_bytes(path, data)
 
 
 def write_sensors_toml(sensors: Sequence[SensorConfig], path: str | os.PathLike[str]) -> Path:

@@ -238,6 +238,8 @@ def _alert(
     extra: dict[str, Any],
 ) -> Alert:
     text, details = kind.describe(view)
+    if extra.get("source") == "samples":
+        text += " (seen in sampled tracks, not on the smoothed track)"
     d: dict[str, Any] = {
         "zone": kind.zone.id if kind.zone is not None else None,
         "index_range": index_range,

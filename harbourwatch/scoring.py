@@ -47,8 +47,6 @@ from __future__ import annotations
 
 import html
 import math
-import os
-import tempfile
 from dataclasses import dataclass
 from os import PathLike
 from pathlib import Path
@@ -57,6 +55,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from ._io import atomic_write_text
 from ._scoreread import ScoreTable, group_by_track, read_score_csv
 from .errors import InputError
 from .geodesy import LocalFrame
@@ -462,15 +461,8 @@ def write_score_plot(report: ScoreReport, path: str | PathLike[str]) -> None:
                 f"{html.escape(report.truth_path)}</p>{svg}<pre>{html.escape(report.as_table())}</pre>"
                 "<p>Accuracy figures support, and never replace, qualified watchkeepers "
                 "and the competent authority.</p></body></html>\n")
-    folder = p.parent if str(p.parent) else Path(".")
-    tmp = None
     try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=folder)
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-        os.replace(tmp, p)
+        atomic_write_text(p, text)
     except OSError as exc:
-        if tmp is not None and os.path.exists(tmp):
-            os.unlink(tmp)
         raise InputError(f"cannot write the plot: {exc.strerror or exc}", file=str(p),
                          field="--plot") from exc

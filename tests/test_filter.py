@@ -33,8 +33,12 @@ def test_single_vessel_equals_kalman_and_rts():
     feed = make_feed([v], [Radar(site=(0.0, 0.0), p_detect=1.0, clutter_per_scan=0.0)], 400.0)
     sensors = [
         SensorModel(
-            index=0, site=(0.0, 0.0), detection_probability=1 - 1e-9,
-            clutter_intensity=1e-14, max_range_m=8000.0, scan_period_s=3.0,
+            index=0,
+            site=(0.0, 0.0),
+            detection_probability=1 - 1e-9,
+            clutter_intensity=1e-14,
+            max_range_m=8000.0,
+            scan_period_s=3.0,
         )
     ]
     st = FilterSettings(accel_psd_m2_s3=0.05, birth_speed_sd_m_s=5.0)
@@ -90,7 +94,9 @@ def test_worked_numbers_miss_and_predict():
 def test_worked_numbers_detection_and_new_trajectory():
     S = np.diag([100.0, 100.0])
     ll = multivariate_normal(mean=[0.0, 0.0], cov=S).logpdf([0.0, 0.0])  # scipy, outside us
-    assert math.exp(detection_log_weight(0.9, 0.99, 0.9, ll)) == pytest.approx(1.2762635e-3, rel=1e-7)
+    assert math.exp(detection_log_weight(0.9, 0.99, 0.9, ll)) == pytest.approx(
+        1.2762635e-3, rel=1e-7
+    )
     e = 0.9 * 0.1 * math.exp(ll)
     assert e == pytest.approx(1.4323944e-4, rel=1e-7)
     w, r = new_trajectory_weight(e, 1e-4)
@@ -104,20 +110,30 @@ def test_worked_numbers_detection_and_new_trajectory():
 def _scan(sensor, t, z, ids, sigma=20.0):
     z = np.asarray(z, float)
     return MeasurementScan(
-        sensor=sensor, time=float(t), plot_ids=np.asarray(ids, np.int64),
-        plot_time=np.full(len(z), float(t)), z=z,
+        sensor=sensor,
+        time=float(t),
+        plot_ids=np.asarray(ids, np.int64),
+        plot_time=np.full(len(z), float(t)),
+        z=z,
         R=np.broadcast_to(sigma**2 * np.eye(2), (len(z), 2, 2)).copy(),
     )
 
 
 def test_one_scan_hypothesis_weights_match_enumeration():
     sensor = SensorModel(
-        index=0, site=(0.0, 0.0), detection_probability=0.8,
-        clutter_intensity=2e-8, max_range_m=5000.0, scan_period_s=3.0,
+        index=0,
+        site=(0.0, 0.0),
+        detection_probability=0.8,
+        clutter_intensity=2e-8,
+        max_range_m=5000.0,
+        scan_period_s=3.0,
     )
     st = FilterSettings(
-        log_weight_prune=1e9, existence_prune=0.0, max_global_hypotheses=1000,
-        initial_vessels=40.0, birth_speed_sd_m_s=3.0,
+        log_weight_prune=1e9,
+        existence_prune=0.0,
+        max_global_hypotheses=1000,
+        initial_vessels=40.0,
+        birth_speed_sd_m_s=3.0,
     )
     f = _Filter([sensor], st, [])
     f.process(_scan(0, 10.0, [[1000.0, 1000.0], [1060.0, 1000.0]], [0, 1]), 0)
@@ -125,12 +141,22 @@ def test_one_scan_hypothesis_weights_match_enumeration():
     for c in f.clusters:
         for b in c.berns:
             (lh,) = b.lhs
-            prior[b.bid] = (lh.r, lh.alive, f.nodes.t[lh.node], f.nodes.m[lh.node], f.nodes.P[lh.node])
+            prior[b.bid] = (
+                lh.r,
+                lh.alive,
+                f.nodes.t[lh.node],
+                f.nodes.m[lh.node],
+                f.nodes.P[lh.node],
+            )
     assert len(prior) == 2
     t2 = 13.0
     z2 = np.array([[1025.0, 1010.0], [1040.0, 990.0]])
     D = f.ppp.density(z2) * math.exp(-3.0 / st.mean_lifetime_s)
-    D += f.ppp.birth[f.ppp._cells(z2)] * st.mean_lifetime_s * (1 - math.exp(-3.0 / st.mean_lifetime_s))
+    D += (
+        f.ppp.birth[f.ppp._cells(z2)]
+        * st.mean_lifetime_s
+        * (1 - math.exp(-3.0 / st.mean_lifetime_s))
+    )
     new_w = 0.8 * D + 2e-8
     f.process(_scan(0, t2, z2, [2, 3]), 1)
     # brute force: each plot goes to Bernoulli 1, Bernoulli 2, or starts a trajectory
@@ -145,7 +171,9 @@ def test_one_scan_hypothesis_weights_match_enumeration():
             ps = math.exp(-(t2 - t1) / st.mean_lifetime_s)
             if bid in assign:
                 j = assign.index(bid)
-                mp, Pp = kf_predict(m1, P1, cv_transition(t2 - t1), cv_process_noise(t2 - t1, st.accel_psd_m2_s3))
+                mp, Pp = kf_predict(
+                    m1, P1, cv_transition(t2 - t1), cv_process_noise(t2 - t1, st.accel_psd_m2_s3)
+                )
                 S = Pp[np.ix_([0, 2], [0, 2])] + 400.0 * np.eye(2)
                 w *= r * 0.8 * alive * ps * multivariate_normal(mp[[0, 2]], S).pdf(z2[j])
             else:
@@ -201,8 +229,31 @@ def test_crossing_and_parallel_vessels_keep_identities():
     ]
     radar = Radar(site=(0.0, 0.0), period=3.0, clutter_per_scan=15.0, sigma=15.0)
     feed = make_feed(vessels, [radar], 600.0, seed=11)
-    out = run_filter(feed.scans, feed.sensors, FilterSettings())
+    calls = []
+    out = run_filter(
+        feed.scans, feed.sensors, FilterSettings(), progress=lambda i, n: calls.append((i, n))
+    )
     pur = _check_identities(out, feed, len(vessels))
+    assert calls[-1] == (len(feed.scans), len(feed.scans)) and len(calls) >= 50
+    assert [c[0] for c in calls] == sorted(c[0] for c in calls)
+    for tr in out.trajectories:
+        assert np.all(np.diff(tr.time) > 0)
+        assert np.allclose(tr.cov, np.swapaxes(tr.cov, 1, 2))
+        assert np.all(np.linalg.eigvalsh(tr.cov) > 0)
+        assert tr.pred_mean.shape == tr.filt_mean.shape
+        np.testing.assert_array_equal(tr.pred_mean[0], tr.filt_mean[0])
+    assert out.stats["plots_in_trajectories"] == sum(
+        int((t.plot_ids >= 0).sum()) for t in out.trajectories
+    )
+    assert out.stats["scans"] == len(feed.scans)
+    # the as-seen view uses the same ids; its positions follow the smoothed trajectory
+    ids = {t.id for t in out.trajectories}
+    assert ids <= set(out.as_seen.track.tolist())
+    for tr in out.trajectories:
+        rows = out.as_seen.track == tr.id
+        east = np.interp(out.as_seen.time[rows], tr.time, tr.mean[:, 0])
+        assert np.median(np.abs(out.as_seen.mean[rows, 0] - east)) < 30.0
+    assert all(t in ids or t.startswith("P") for t in out.as_seen.track.tolist())
     # continuous cover, no track breaks: one trajectory per vessel (a few plots taken by
     # the other vessel where both are within a plot's error of each other), no false ones
     assert all(sum(p.values()) - max(p.values()) <= 5 for p in pur), pur
@@ -239,7 +290,9 @@ def test_clutter_burst_completes_with_caps_logged():
     ]
     # a squall: 500 false plots within 250 m of both vessels in one scan
     radar = Radar(
-        site=(0.0, 0.0), period=3.0, clutter_per_scan=10.0,
+        site=(0.0, 0.0),
+        period=3.0,
+        clutter_per_scan=10.0,
         bursts={33: (500, (-500.0, 150.0), 250.0)},
     )
     feed = make_feed(vessels, [radar], 300.0, seed=2)
@@ -256,8 +309,13 @@ def test_outage_of_one_radar_does_not_break_tracks():
     vessels = [Vessel(0.0, 1500.0, (-3000.0 + 1000 * k, -2000.0), (2.0, 3.0)) for k in range(3)]
     radars = [
         Radar(site=(-2000.0, 0.0), period=2.5, clutter_per_scan=15.0),
-        Radar(site=(2000.0, 0.0), period=3.0, offset=1.1, clutter_per_scan=15.0,
-              silent=[(300.0, 900.0)]),  # ten minutes without scans
+        Radar(
+            site=(2000.0, 0.0),
+            period=3.0,
+            offset=1.1,
+            clutter_per_scan=15.0,
+            silent=[(300.0, 900.0)],
+        ),  # ten minutes without scans
     ]
     feed = make_feed(vessels, radars, 1500.0, seed=8)
     out = run_filter(feed.scans, feed.sensors, FilterSettings())

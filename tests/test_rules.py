@@ -208,6 +208,8 @@ def build_scenario(seed: int) -> dict[str, Vessel]:
     # passing 300 m apart on opposite courses at 1 kn
     v["P1"] = Vessel("P1", (7000, -3000), [(1200, 1, 90)], rng)
     v["P2"] = Vessel("P2", (7600, -2700), [(1200, 1, 270)], rng)
+    # across the firing range, out for about 3 minutes, and back across: two crossings
+    v["X2"] = Vessel("X2", (1500, 150), [(450, 8, 90), (450, 8, 270)], rng)
     return v
 
 
@@ -255,7 +257,16 @@ def test_loiter_25_min_caught_8_min_not(scenario: dict[str, Vessel], alerts: lis
 def test_crossing_caught_with_entry_and_exit(scenario: dict[str, Vessel],
                                              alerts: list[Alert]) -> None:
     got = by_rule(alerts, "range-crossing")
-    assert [a.track for a in got] == ["X1"]
+    assert sorted(a.track for a in got) == ["X1", "X2", "X2"]  # one alert per crossing
+    twice = [a for a in got if a.track == "X2"]
+    v2 = scenario["X2"]
+    inside2 = local_inside(FIRING, v2.pos)
+    k_out = int(np.argmax(v2.pos[:, 0]))  # the turn, outside east of the range
+    assert not inside2[k_out]
+    for a, part in zip(twice, (slice(0, k_out), slice(k_out, None)), strict=True):
+        t0, t1 = true_span(v2.t[part], inside2[part])
+        assert abs(a.start - t0) <= EPISODE_TOL_S and abs(a.end - t1) <= EPISODE_TOL_S
+    got = [a for a in got if a.track == "X1"]
     v = scenario["X1"]
     inside = local_inside(FIRING, v.pos)
     t0, t1 = true_span(v.t, inside)

@@ -76,8 +76,12 @@ def make_feed(vessels: list[Vessel], radars: list[Radar], t_end: float, seed: in
             if any(a <= t0 < b for a, b in rd.empty):
                 scans.append(
                     MeasurementScan(
-                        sensor=s, time=t0 + rd.period, plot_ids=np.zeros(0, np.int64),
-                        plot_time=np.zeros(0), z=np.zeros((0, 2)), R=np.zeros((0, 2, 2)),
+                        sensor=s,
+                        time=t0 + rd.period,
+                        plot_ids=np.zeros(0, np.int64),
+                        plot_time=np.zeros(0),
+                        z=np.zeros((0, 2)),
+                        R=np.zeros((0, 2, 2)),
                     )
                 )
                 t0 += rd.period
@@ -110,7 +114,9 @@ def make_feed(vessels: list[Vessel], radars: list[Radar], t_end: float, seed: in
                 rad = radius * np.sqrt(rng.random(nb))
                 ang = rng.random(nb) * 2 * np.pi
                 for k in range(nb):
-                    zs.append(np.asarray(centre) + rad[k] * np.array([np.sin(ang[k]), np.cos(ang[k])]))
+                    zs.append(
+                        np.asarray(centre) + rad[k] * np.array([np.sin(ang[k]), np.cos(ang[k])])
+                    )
                     ts.append(t0 + rd.period * 0.5)
                     who.append(-1)
             order = np.argsort(ts, kind="stable")

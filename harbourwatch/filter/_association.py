@@ -45,7 +45,9 @@ class ScanContext:
     born: Callable[[int], Bernoulli]  # plot -> new Bernoulli with one local hypothesis
 
 
-def merge_clusters(clusters: list[Cluster], cap: int) -> tuple[list[Bernoulli], IntArray, Array, bool]:
+def merge_clusters(
+    clusters: list[Cluster], cap: int
+) -> tuple[list[Bernoulli], IntArray, Array, bool]:
     """Cartesian product of the clusters' global hypotheses (weights multiply)."""
     berns: list[Bernoulli] = []
     table = np.zeros((1, 0), np.int64)

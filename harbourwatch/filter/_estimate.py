@@ -12,9 +12,9 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from ..models import cv_transition_batch
 from ..trajectories import AsSeenTable, Trajectory
 from . import FilterOutput
-from ..models import cv_transition_batch
 
 if TYPE_CHECKING:
     from .tpmbm import _Filter
@@ -70,7 +70,7 @@ def build_output(filt: _Filter) -> FilterOutput:
     nodes = filt.nodes
     last_scan = filt.last_time
     chosen: list[tuple[float, float, int, Any]] = []
-    for c in filt.clusters:
+    for c in filt.retired + filt.clusters:
         row = c.table[int(np.argmax(c.logw))]
         for b, h in zip(c.berns, row, strict=True):
             if h < 0:
@@ -80,7 +80,14 @@ def build_output(filt: _Filter) -> FilterOutput:
                 continue
             end_node, end_p, is_alive = lh.best_end()
             idx = nodes.chain(end_node)
-            chosen.append((float(nodes.t[idx[0]]), float(nodes.m[idx[0], 0]), b.bid, (lh, idx, end_p, is_alive)))
+            chosen.append(
+                (
+                    float(nodes.t[idx[0]]),
+                    float(nodes.m[idx[0], 0]),
+                    b.bid,
+                    (lh, idx, end_p, is_alive),
+                )
+            )
     chosen.sort(key=lambda x: (x[0], x[1], x[2]))
     trajectories: list[Trajectory] = []
     ids: dict[int, str] = {}
@@ -92,9 +99,7 @@ def build_output(filt: _Filter) -> FilterOutput:
         ms, Ps = rts_smooth_scan(t, fm, fP, pm, pP)
         plots = nodes.plot[idx].copy()
         used_plots += int((plots >= 0).sum())
-        alive_at_end = bool(
-            is_alive and not lh.frozen and t[-1] >= last_scan - st.as_seen_window_s
-        )
+        alive_at_end = bool(is_alive and not lh.frozen and t[-1] >= last_scan - st.as_seen_window_s)
         trajectories.append(
             Trajectory(
                 id=tid,

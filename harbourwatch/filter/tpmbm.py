@@ -47,13 +47,13 @@ from collections.abc import Callable, Sequence
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.special import ndtr
 
 from ..config import FilterSettings
 from ..models import cv_process_noise_batch, cv_transition_batch
 from . import BirthRegion, FilterOutput, MeasurementScan, SensorModel
 from ._association import ScanContext, prune, update_group
 from ._estimate import build_output
+from ._gating import MIN_STEP_S, cover_detection, gate_pairs
 from ._hypotheses import (
     ALIVE_FLOOR,
     Bernoulli,
@@ -65,14 +65,12 @@ from ._hypotheses import (
 )
 from ._nodes import NodeStore
 from ._undetected import UndetectedDensity
-from .gaussian import kf_predict, log_likelihood, mahalanobis2_batch
+from .gaussian import kf_predict
 
 __all__ = ["run_tpmbm"]
 
 Array = NDArray[np.float64]
 _POS = [0, 2]
-#: Smallest step between two nodes of one chain (keeps chain times increasing).
-_MIN_STEP_S = 1e-3
 _ONE = np.zeros((1, 1), np.int64)  # table of a lone Bernoulli (shared, never written)
 _ZERO = np.zeros(1)
 
@@ -100,6 +98,7 @@ class _Filter:
         )
         self.nodes = NodeStore()
         self.clusters: list[Cluster] = []
+        self.retired: list[Cluster] = []  # every local hypothesis frozen
         self.next_bid = 0
         self.caps: dict[str, int] = defaultdict(int)
         self.log: list[str] = []
@@ -159,9 +158,11 @@ class _Filter:
         t_leaf = self.nodes.t[node_idx]
         leaf_m = self.nodes.m[node_idx]
         leaf_P = self.nodes.P[node_idx]
-        tmiss = np.maximum(tk, t_leaf + _MIN_STEP_S)
+        tmiss = np.maximum(tk, t_leaf + MIN_STEP_S)
         dt = tmiss - t_leaf
-        pm, pP = kf_predict(leaf_m, leaf_P, cv_transition_batch(dt), cv_process_noise_batch(dt, self.q))
+        pm, pP = kf_predict(
+            leaf_m, leaf_P, cv_transition_batch(dt), cv_process_noise_batch(dt, self.q)
+        )
         ps = np.exp(-dt / st.mean_lifetime_s)
         # hypotheses that have coasted too long (out of every cover, or radars silent) end
         coast = (tk - t_leaf > st.max_coast_s) | (
@@ -171,7 +172,7 @@ class _Filter:
             for s in np.flatnonzero(coast):
                 lhs[s].freeze()
                 lhs[s].slot = -1
-        pd = np.where(coast, 0.0, _cover_detection(pm, pP, sensor))
+        pd = np.where(coast, 0.0, cover_detection(pm, pP, sensor))
         # a missed detection makes a node only where the predicted mean is inside the range
         hard = np.hypot(pm[:, 0] - sensor.site[0], pm[:, 2] - sensor.site[1]) <= sensor.max_range_m
         r = np.fromiter((lh.r for lh in lhs), float, n)
@@ -184,7 +185,7 @@ class _Filter:
         # gating and detection children (vectorised over hypothesis x plot)
         t0 = _time.perf_counter()
         z, R, tj = scan.z, scan.R, scan.plot_time
-        pairs = self._gate(lhs, pd, leaf_m, leaf_P, t_leaf, pm, pP, z, R, tj, tk)
+        pairs = gate_pairs(self.gate, self.q, pd, leaf_m, leaf_P, t_leaf, pm, pP, z, R, tj, tk)
         ii, jj, ll, stamp, m_upd, P_upd = pairs
         self._pair_plot = jj
         ln_det = detection_log_weight(r[ii], alive_pred[ii], pd[ii], ll)
@@ -193,7 +194,9 @@ class _Filter:
             det_pairs[i].append((j, p))
 
         # new trajectories from the undetected density
-        in_range = np.hypot(z[:, 0] - sensor.site[0], z[:, 1] - sensor.site[1]) <= sensor.max_range_m
+        in_range = (
+            np.hypot(z[:, 0] - sensor.site[0], z[:, 1] - sensor.site[1]) <= sensor.max_range_m
+        )
         e = np.where(in_range, sensor.detection_probability, 0.0) * self.ppp.density(z)
         lam = sensor.clutter_intensity
         ln_new = np.log(e + lam) if m else np.zeros(0)
@@ -301,6 +304,9 @@ class _Filter:
                 )
             )
         self.clusters = keep_clusters + new_clusters
+        if scan_index % 64 == 0:  # clusters whose hypotheses have all ended never change again
+            self.retired.extend(c for c in self.clusters if _finished(c))
+            self.clusters = [c for c in self.clusters if not _finished(c)]
         self.timers["associate"] += _time.perf_counter() - t0
 
         t0 = _time.perf_counter()
@@ -359,41 +365,6 @@ class _Filter:
             return True
         return False
 
-    def _gate(self, lhs, pd, leaf_m, leaf_P, t_leaf, pm, pP, z, R, tj, tk):  # type: ignore[no-untyped-def]
-        """Gated (hypothesis, plot) pairs with their log-likelihoods and updated moments."""
-        m = z.shape[0]
-        act = np.flatnonzero(pd > 0)
-        empty = (
-            np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0), np.zeros(0),
-            np.zeros((0, 4)), np.zeros((0, 4, 4)),
-        )
-        if m == 0 or act.size == 0:
-            return empty
-        # conservative Euclidean pre-filter, then the exact test at each plot's time
-        pos = pm[act][:, _POS]
-        tr_p = pP[act, 0, 0] + pP[act, 2, 2] + leaf_P[act, 0, 0] + leaf_P[act, 2, 2]
-        tr_r = R[:, 0, 0] + R[:, 1, 1]
-        speed = np.hypot(pm[act, 1], pm[act, 3])
-        bound = np.sqrt(self.gate * (2.0 * tr_p[:, None] + tr_r[None, :]))
-        bound += speed[:, None] * np.abs(tk - tj)[None, :] + 1.0
-        d = np.hypot(z[None, :, 0] - pos[:, 0, None], z[None, :, 1] - pos[:, 1, None])
-        a, jj = np.nonzero(d <= bound)
-        if a.size == 0:
-            return empty
-        ii = act[a]
-        stamp = np.maximum(tj[jj], t_leaf[ii] + _MIN_STEP_S)
-        dtp = stamp - t_leaf[ii]
-        mp, Pp = kf_predict(
-            leaf_m[ii], leaf_P[ii], cv_transition_batch(dtp), cv_process_noise_batch(dtp, self.q)
-        )
-        S = Pp[:, _POS][:, :, _POS] + R[jj]
-        nu = z[jj] - mp[:, _POS]
-        ok = mahalanobis2_batch(nu, S) < self.gate
-        ii, jj, stamp, mp, Pp, S, nu = ii[ok], jj[ok], stamp[ok], mp[ok], Pp[ok], S[ok], nu[ok]
-        ll = log_likelihood(nu, S)
-        m_upd, P_upd = _batch_update(mp, Pp, nu, S, R[jj])
-        return ii, jj, ll, stamp, m_upd, P_upd
-
     def _flush_nodes(self, pend, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, var_v):  # type: ignore[no-untyped-def]
         if not pend:
             return
@@ -439,40 +410,8 @@ class _Filter:
                 self.as_seen.append((tk, b.bid, mean.copy(), sd, lh.r))
 
 
-def _cover_detection(pm: Array, pP: Array, sensor: SensorModel) -> Array:
-    """Detection probability of predicted states: ``p_D Pr(inside the range)``.
-
-    The probability of being inside ``max_range_m`` is taken along the line
-    of sight, ``Φ((R_max - ρ̂) / σ_ρ)``. Far from the edge this is the
-    detection probability at the predicted mean (methods note §D); near it,
-    it stops a hypothesis that is predicted just outside from escaping its
-    missed detections for free while one just inside pays for them, which
-    would bias where vessels are estimated to leave the cover.
-    """
-    de = pm[:, 0] - sensor.site[0]
-    dn = pm[:, 2] - sensor.site[1]
-    rho = np.hypot(de, dn)
-    safe = np.maximum(rho, 1e-9)
-    ue, un = de / safe, dn / safe
-    var = ue * ue * pP[:, 0, 0] + 2 * ue * un * pP[:, 0, 2] + un * un * pP[:, 2, 2]
-    inside = ndtr((sensor.max_range_m - rho) / np.sqrt(np.maximum(var, 1e-12)))
-    return np.where(inside >= 0.01, sensor.detection_probability * inside, 0.0)
-
-
-def _batch_update(mp: Array, Pp: Array, nu: Array, S: Array, R: Array) -> tuple[Array, Array]:
-    """Joseph-form Kalman updates with position plots, batched (closed-form 2x2 inverse)."""
-    a, b, d = S[:, 0, 0], S[:, 0, 1], S[:, 1, 1]
-    det = a * d - b * b
-    Sinv = np.empty_like(S)
-    Sinv[:, 0, 0], Sinv[:, 1, 1] = d / det, a / det
-    Sinv[:, 0, 1] = Sinv[:, 1, 0] = -b / det
-    PHt = Pp[:, :, _POS]
-    K = PHt @ Sinv
-    m = mp + np.einsum("nij,nj->ni", K, nu)
-    IKH = np.broadcast_to(np.eye(4), Pp.shape).copy()
-    IKH[:, :, _POS] -= K
-    P = IKH @ Pp @ np.swapaxes(IKH, 1, 2) + K @ R @ np.swapaxes(K, 1, 2)
-    return m, 0.5 * (P + np.swapaxes(P, 1, 2))
+def _finished(c: Cluster) -> bool:
+    return all(lh.frozen for b in c.berns for lh in b.lhs)
 
 
 def run_tpmbm(

@@ -2,12 +2,11 @@
 
 from __future__ import annotations
 
-import os
-import tempfile
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+from .._io import atomic_write_text
 from ._assets import leaflet_css, leaflet_js, own_asset
 from ._html import esc
 from ._mapbase import MapParts
@@ -91,15 +90,6 @@ def provenance_html(prov: Any, depth: int = 0) -> str:
 
 
 def write_atomic(path: Path, text: str) -> Path:
-    """Write ``text`` (UTF-8) to ``path`` via a temp file in the same folder + os.replace."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    """Write ``text`` (UTF-8) to ``path`` atomically (temp file in the same folder, rename)."""
+    atomic_write_text(path, text)
     return path
