@@ -26,23 +26,26 @@ from harbourwatch.models import cv_process_noise, cv_transition
 # -- 1. one vessel, every scan detected: the filter is a Kalman filter + RTS smoother -----
 
 
-def test_single_vessel_equals_kalman_and_rts():
-    # p_D -> 1 limit: p_D = 1 - 1e-9 keeps w_miss = 1 - r p_D β > 0 (methods note P5), and
-    # with (almost) no clutter the only surviving hypothesis uses every plot.
+@pytest.mark.parametrize("p_detect", [1 - 1e-9, 1.0])
+def test_single_vessel_equals_kalman_and_rts(p_detect):
+    # p_D -> 1: w_miss = 1 - r p_D β stays > 0 for p_D < 1 (methods note P5); at p_D = 1 the
+    # filter clamps ln w_miss at ln 1e-300 instead of -inf. With (almost) no clutter the
+    # only surviving hypothesis uses every plot.
     v = Vessel(0.0, 400.0, (-1500.0, 300.0), (4.0, -2.5))
     feed = make_feed([v], [Radar(site=(0.0, 0.0), p_detect=1.0, clutter_per_scan=0.0)], 400.0)
     sensors = [
         SensorModel(
             index=0,
             site=(0.0, 0.0),
-            detection_probability=1 - 1e-9,
+            detection_probability=p_detect,
             clutter_intensity=1e-14,
             max_range_m=8000.0,
             scan_period_s=3.0,
         )
     ]
     st = FilterSettings(accel_psd_m2_s3=0.05, birth_speed_sd_m_s=5.0)
-    out = run_filter(feed.scans, sensors, st)
+    with np.errstate(all="raise"):  # no NaN, no overflow, no log(0)
+        out = run_filter(feed.scans, sensors, st)
     assert len(out.trajectories) == 1
     tr = out.trajectories[0]
     # plain Kalman filter from the same initial state: [z0, 0], blockdiag(R0, σ_v² I)
@@ -336,3 +339,53 @@ def test_radar_going_silent_at_the_end_keeps_tracks_alive():
     assert out.stats["scans_skipped_as_outage"] >= 90
     for t in out.trajectories:
         assert t.alive_at_end and t.end >= last_plot_time - 2 * radar.period
+
+
+def test_fast_paths_give_the_general_result(monkeypatch):
+    # the shortcuts for tiny groups must not change anything: rerun without them
+    vessels = [
+        Vessel(0.0, 240.0, (-1500.0, -500.0), (5.0, 1.0)),
+        Vessel(0.0, 240.0, (-1500.0, -380.0), (5.0, 1.0)),
+        Vessel(0.0, 240.0, (1000.0, 1000.0), (-3.0, -3.0)),
+    ]
+    feed = make_feed(vessels, [Radar(site=(0.0, 0.0), clutter_per_scan=15.0)], 240.0, seed=3)
+    fast = run_filter(feed.scans, feed.sensors, FilterSettings())
+    monkeypatch.setattr(_Filter, "_fast_path", lambda self, *a: False)
+    slow = run_filter(feed.scans, feed.sensors, FilterSettings())
+    assert [t.id for t in fast.trajectories] == [t.id for t in slow.trajectories]
+    for a, b in zip(fast.trajectories, slow.trajectories, strict=True):
+        np.testing.assert_allclose(a.mean, b.mean, rtol=0, atol=1e-9)
+        assert np.array_equal(a.plot_ids, b.plot_ids) and a.existence == pytest.approx(b.existence)
+    def rows(o):  # the order of rows within one scan is not part of the contract
+        a = o.as_seen
+        return sorted(zip(a.time.tolist(), a.track.tolist(), a.mean[:, 0].round(6).tolist()))
+
+    assert rows(fast) == rows(slow)
+
+
+def test_undetected_density_counts_and_birth_region():
+    from shapely.geometry import box
+
+    from harbourwatch.filter._undetected import UndetectedDensity
+
+    tau = 3600.0
+    ppp = UndetectedDensity(
+        [(0.0, 0.0)],
+        [5000.0],
+        initial_vessels=10.0,
+        arrivals_per_hour=6.0,
+        mean_lifetime_s=tau,
+        regions=[(box(1000.0, 1000.0, 2000.0, 2000.0), 12.0)],
+    )
+    assert ppp.expected_undetected() == pytest.approx(10.0)
+    ppp.predict(0.0)
+    ppp.predict(1800.0)
+    # dN/dt = -N/τ + b  =>  N(t) = N0 e^{-t/τ} + b τ (1 - e^{-t/τ})  (linear ODE, closed form)
+    decay = math.exp(-0.5)
+    expected = 10.0 * decay + (6.0 + 12.0) / 3600.0 * tau * (1 - decay)
+    assert ppp.expected_undetected() == pytest.approx(expected)
+    inside, outside = ppp.density(np.array([[1500.0, 1500.0], [-1500.0, -1500.0]]))
+    assert inside > 10 * outside > 0
+    ppp.thin(0, 0.9)
+    assert ppp.expected_undetected() == pytest.approx(0.1 * expected)
+    assert ppp.density(np.array([[9000.0, 9000.0]]))[0] == 0.0  # outside the grid

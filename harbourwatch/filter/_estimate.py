@@ -118,14 +118,17 @@ def build_output(filt: _Filter) -> FilterOutput:
             )
         )
     if filt.as_seen:
-        tt = np.array([r[0] for r in filt.as_seen])
-        track = np.array([ids.get(r[1], f"P{r[1]}") for r in filt.as_seen], dtype="<U16")
+        tt = np.concatenate([np.full(r[1].size, r[0]) for r in filt.as_seen])
+        bids = np.concatenate([r[1] for r in filt.as_seen])
+        leaves = np.concatenate([r[2] for r in filt.as_seen])
+        names = {int(b): ids.get(int(b), f"P{int(b)}") for b in np.unique(bids)}
+        P = nodes.P[leaves]
         as_seen = AsSeenTable(
             time=tt,
-            track=track,
-            mean=np.array([r[2] for r in filt.as_seen]).reshape(-1, 4),
-            sd=np.array([r[3] for r in filt.as_seen]),
-            existence=np.array([r[4] for r in filt.as_seen]),
+            track=np.array([names[int(b)] for b in bids], dtype="<U16"),
+            mean=nodes.m[leaves].copy(),
+            sd=np.sqrt(0.5 * (P[:, 0, 0] + P[:, 2, 2])),
+            existence=np.concatenate([r[3] for r in filt.as_seen]),
         )
     else:
         as_seen = AsSeenTable.empty()

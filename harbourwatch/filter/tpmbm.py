@@ -110,7 +110,7 @@ class _Filter:
         self.scan_count = 0
         self.scan_index = 0
         self.last_time = -math.inf
-        self.as_seen: list[tuple[float, int, Array, float, float]] = []
+        self.as_seen: list[tuple[float, NDArray[np.int64], NDArray[np.int64], Array]] = []
 
     # -- bookkeeping -------------------------------------------------------------------
     def count_cap(self, name: str) -> None:
@@ -392,22 +392,31 @@ class _Filter:
 
     # -- estimates ---------------------------------------------------------------------
     def _record_as_seen(self, tk: float) -> None:
+        """Cheap filtered estimate of this moment (methods note §D): leaf of each Bernoulli
+        of the best global hypothesis with ``r`` above the threshold and most likely alive."""
         thr = self.settings.existence_threshold
+        oldest = tk - self.settings.as_seen_window_s
+        t_node = self.nodes.t
+        bids: list[int] = []
+        leaves: list[int] = []
+        rs: list[float] = []
         for c in self.clusters:
-            row = c.table[int(np.argmax(c.logw))]
-            for b, h in zip(c.berns, row, strict=True):
+            row = c.table[0] if c.logw.size == 1 else c.table[int(np.argmax(c.logw))]
+            for b, h in zip(c.berns, row.tolist(), strict=True):
                 if h < 0:
                     continue
                 lh = b.lhs[h]
-                if lh.frozen or lh.r <= thr:
+                if lh.frozen or lh.r <= thr or (lh.end_p and max(lh.end_p) > lh.alive):
                     continue
-                node, _, is_alive = lh.best_end()
-                if not is_alive or tk - self.nodes.t[node] > self.settings.as_seen_window_s:
+                if t_node[lh.node] < oldest:
                     continue
-                mean = self.nodes.m[node]
-                P = self.nodes.P[node]
-                sd = math.sqrt(0.5 * (P[0, 0] + P[2, 2]))
-                self.as_seen.append((tk, b.bid, mean.copy(), sd, lh.r))
+                bids.append(b.bid)
+                leaves.append(lh.node)
+                rs.append(lh.r)
+        if bids:
+            self.as_seen.append(
+                (tk, np.array(bids, np.int64), np.array(leaves, np.int64), np.array(rs))
+            )
 
 
 def _finished(c: Cluster) -> bool:
