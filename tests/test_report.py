@@ -356,7 +356,7 @@ def test_six_hour_shift_stays_small(tmp_path: Path) -> None:
     assert sum(tr.time.size for tr in inputs.trajectories) > 500_000
     paths = write_reports(tmp_path, inputs)
     size = paths[0].stat().st_size
-    assert size < 5_000_000, size  # the stated bound for the overview (DESIGN.md)
+    assert size < 5_000_000, size  # the stated bound for the overview (README, "Reports: design")
     text = paths[0].read_text("utf-8")
     assert text.count('"className": "hw-traj') == 250
 

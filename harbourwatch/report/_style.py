@@ -1,4 +1,4 @@
-"""Palette and symbols of the reports (see ``DESIGN.md`` for the reasons).
+"""Palette and symbols of the reports (the README section "Reports: design" gives the reasons).
 
 Colours are taken from the Okabe-Ito qualitative set (Okabe & Ito, "Color
 Universal Design", 2008), which stays distinguishable under the common
