@@ -34,8 +34,19 @@ Approximations (documented for review):
   ``min_empty_scan_clutter`` or more false plots per scan is taken as a
   radar outage and skipped (a working radar essentially never returns an
   empty scan then: probability ``e^{-λ}``);
-* per-cluster pruning of global hypotheses by weight and count, of local
-  hypotheses by count, of Bernoullis by existence.
+* a missed detection of a hypothesis predicted just outside the range
+  reweights it without adding a state, so trajectories are not extended
+  beyond the cover;
+* per-cluster pruning of global hypotheses by weight (``log_weight_prune``)
+  and count, of local hypotheses by count, of Bernoullis by existence, and
+  track-oriented N-scan pruning (global hypotheses that disagree with the
+  best one about a decision more than ``n_scan`` x (number of radars) nodes
+  back are dropped);
+* a group of more than ``LARGE_GROUP_PLOTS`` plots (a squall of false
+  plots) keeps only its best parent and that parent's best assignment.
+
+Each cap that bites is counted in ``stats["caps_bitten"]`` and told once in
+the log.
 """
 
 from __future__ import annotations
@@ -73,6 +84,12 @@ Array = NDArray[np.float64]
 _POS = [0, 2]
 _ONE = np.zeros((1, 1), np.int64)  # table of a lone Bernoulli (shared, never written)
 _ZERO = np.zeros(1)
+_CAP_TEXT = {
+    "max_global_hypotheses": "global hypotheses of a cluster cut to max_global_hypotheses",
+    "max_local_hypotheses": "local hypotheses of a trajectory cut to max_local_hypotheses",
+    "merged_hypotheses": "product of merged clusters cut to 10 x max_global_hypotheses",
+    "large_group": "too many plots in one group: only the best assignment is kept",
+}
 
 
 class _Filter:
@@ -115,7 +132,10 @@ class _Filter:
     # -- bookkeeping -------------------------------------------------------------------
     def count_cap(self, name: str) -> None:
         if self.caps[name] == 0:
-            self.log.append(f"cap '{name}' reached for the first time (scan {self.scan_index})")
+            self.log.append(
+                f"scan {self.scan_index}: cap '{name}' reached for the first time "
+                f"({_CAP_TEXT.get(name, name)}); later occurrences are only counted"
+            )
         self.caps[name] += 1
 
     def _new_bid(self) -> int:
