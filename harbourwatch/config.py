@@ -99,7 +99,16 @@ class FilterSettings:
     ----------
     accel_psd_m2_s3
         Power spectral density ``q`` of the white acceleration of the
-        nearly-constant-velocity model, per axis (m^2/s^3).
+        nearly-constant-velocity model, per axis (m^2/s^3), on steady legs.
+    manoeuvre_accel_psd_m2_s3
+        The higher ``q`` of the manoeuvre mode (turns, speed changes). Each
+        trajectory carries the probability of being in that mode; the two
+        modes are merged after every plot (GPB1, see ``filter/_motion.py``).
+        ``None`` or a value not above ``accel_psd_m2_s3`` gives the plain
+        single-mode model.
+    manoeuvre_interval_s, manoeuvre_duration_s
+        Mean time between manoeuvres and mean length of one (the Markov
+        chain of the two modes).
     mean_lifetime_s
         Mean time a vessel stays in the surveillance picture; survival
         probability over ``dt`` is ``exp(-dt / mean_lifetime_s)``.
@@ -137,7 +146,10 @@ class FilterSettings:
         this old.
     """
 
-    accel_psd_m2_s3: float = 0.05
+    accel_psd_m2_s3: float = 0.0002
+    manoeuvre_accel_psd_m2_s3: float | None = 0.05
+    manoeuvre_interval_s: float = 900.0
+    manoeuvre_duration_s: float = 60.0
     mean_lifetime_s: float = 4 * 3600.0
     arrivals_per_hour: float = 20.0
     initial_vessels: float = 20.0

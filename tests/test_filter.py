@@ -12,7 +12,8 @@ from scipy.stats import multivariate_normal
 from tpmbm_synth import Radar, Vessel, make_feed, purity
 
 from harbourwatch.config import FilterSettings
-from harbourwatch.filter import MeasurementScan, SensorModel, run_filter
+from harbourwatch.filter import MeasurementScan, SensorModel, run_filter, tpmbm
+from harbourwatch.filter._association import update_group
 from harbourwatch.filter._hypotheses import (
     beta_predict,
     detection_log_weight,
@@ -137,6 +138,7 @@ def test_one_scan_hypothesis_weights_match_enumeration():
         max_global_hypotheses=1000,
         initial_vessels=40.0,
         birth_speed_sd_m_s=3.0,
+        manoeuvre_accel_psd_m2_s3=None,  # one motion mode: plain Gaussian likelihoods
     )
     f = _Filter([sensor], st, [])
     f.process(_scan(0, 10.0, [[1000.0, 1000.0], [1060.0, 1000.0]], [0, 1]), 0)
@@ -351,14 +353,24 @@ def test_fast_paths_give_the_general_result(monkeypatch):
     feed = make_feed(vessels, [Radar(site=(0.0, 0.0), clutter_per_scan=15.0)], 240.0, seed=3)
     fast = run_filter(feed.scans, feed.sensors, FilterSettings())
     monkeypatch.setattr(_Filter, "_fast_path", lambda self, *a: False)
+    monkeypatch.setattr(
+        tpmbm,
+        "update_single",
+        lambda c, plots, ctx, max_hyp: update_group(
+            [c], plots, ctx, max_hyp=max_hyp, count_cap=lambda name: None
+        ),
+    )
     slow = run_filter(feed.scans, feed.sensors, FilterSettings())
     assert [t.id for t in fast.trajectories] == [t.id for t in slow.trajectories]
     for a, b in zip(fast.trajectories, slow.trajectories, strict=True):
         np.testing.assert_allclose(a.mean, b.mean, rtol=0, atol=1e-9)
         assert np.array_equal(a.plot_ids, b.plot_ids) and a.existence == pytest.approx(b.existence)
+
     def rows(o):  # the order of rows within one scan is not part of the contract
         a = o.as_seen
-        return sorted(zip(a.time.tolist(), a.track.tolist(), a.mean[:, 0].round(6).tolist()))
+        return sorted(
+            zip(a.time.tolist(), a.track.tolist(), a.mean[:, 0].round(6).tolist(), strict=True)
+        )
 
     assert rows(fast) == rows(slow)
 
@@ -389,3 +401,26 @@ def test_undetected_density_counts_and_birth_region():
     ppp.thin(0, 0.9)
     assert ppp.expected_undetected() == pytest.approx(0.1 * expected)
     assert ppp.density(np.array([[9000.0, 9000.0]]))[0] == 0.0  # outside the grid
+
+
+def test_node_store_compaction_changes_nothing(monkeypatch):
+    # dropping unreachable nodes mid-run must give byte-identical results
+    vessels = [
+        Vessel(0.0, 300.0, (-1500.0, -500.0), (5.0, 1.0)),
+        Vessel(0.0, 150.0, (1000.0, 1000.0), (-3.0, -3.0)),
+    ]
+    feed = make_feed(vessels, [Radar(site=(0.0, 0.0), clutter_per_scan=15.0)], 300.0, seed=6)
+    plain = run_filter(feed.scans, feed.sensors, FilterSettings())
+    from harbourwatch.filter._nodes import NodeStore
+
+    monkeypatch.setattr(tpmbm, "_COMPACT_MIN", 64)
+    monkeypatch.setattr(tpmbm, "NodeStore", lambda: NodeStore(capacity=128))
+    squeezed = run_filter(feed.scans, feed.sensors, FilterSettings())
+    assert squeezed.stats["nodes"] < plain.stats["nodes"]  # compaction did happen
+    assert [t.id for t in plain.trajectories] == [t.id for t in squeezed.trajectories]
+    for a, b in zip(plain.trajectories, squeezed.trajectories, strict=True):
+        for name in ("time", "mean", "cov", "filt_mean", "pred_cov", "plot_ids", "sensor_ids"):
+            assert np.array_equal(getattr(a, name), getattr(b, name)), name
+        assert a.end_probability == b.end_probability
+    for name in ("time", "track", "mean", "sd", "existence"):
+        assert np.array_equal(getattr(plain.as_seen, name), getattr(squeezed.as_seen, name))

@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from harbourwatch.filter import MeasurementScan, SensorModel
+from harbourwatch.models import converted_covariance
 
 
 @dataclass
@@ -33,6 +34,7 @@ class Radar:
     p_detect: float = 0.9
     clutter_per_scan: float = 5.0
     sigma: float = 15.0
+    bearing_sd_deg: float | None = None  # if set: range/bearing noise (range sd = sigma)
     offset: float = 0.0
     silent: list[tuple[float, float]] = field(default_factory=list)  # outages (no scans)
     empty: list[tuple[float, float]] = field(default_factory=list)  # outages (empty scans)
@@ -99,7 +101,13 @@ def make_feed(vessels: list[Vessel], radars: list[Radar], t_end: float, seed: in
                     continue
                 if rng.random() >= rd.p_detect:
                     continue
-                zs.append(p + rng.normal(0.0, rd.sigma, 2))
+                if rd.bearing_sd_deg is None:
+                    zs.append(p + rng.normal(0.0, rd.sigma, 2))
+                else:
+                    d = p - np.asarray(rd.site)
+                    rho = np.hypot(*d) + rng.normal(0.0, rd.sigma)
+                    brg = np.arctan2(d[0], d[1]) + np.radians(rng.normal(0.0, rd.bearing_sd_deg))
+                    zs.append(np.asarray(rd.site) + rho * np.array([np.sin(brg), np.cos(brg)]))
                 ts.append(t)
                 who.append(vi)
             nc = rng.poisson(rd.clutter_per_scan)
@@ -134,12 +142,19 @@ def make_feed(vessels: list[Vessel], radars: list[Radar], t_end: float, seed: in
                     plot_ids=ids,
                     plot_time=tt,
                     z=z,
-                    R=np.broadcast_to(rd.sigma**2 * np.eye(2), (len(order), 2, 2)).copy(),
+                    R=_covariances(rd, z),
                 )
             )
             t0 += rd.period
     scans.sort(key=lambda sc: (sc.time, sc.sensor))
     return Feed(scans=scans, sensors=sensors, truth_of_plot=truth, n_plots=pid)
+
+
+def _covariances(rd: Radar, z: np.ndarray) -> np.ndarray:
+    if rd.bearing_sd_deg is None:
+        return np.broadcast_to(rd.sigma**2 * np.eye(2), (len(z), 2, 2)).copy()
+    d = z - np.asarray(rd.site)[None, :]
+    return converted_covariance(d[:, 0], d[:, 1], rd.sigma, np.radians(rd.bearing_sd_deg))
 
 
 def purity(trajectories, truth_of_plot: dict[int, int], n_vessels: int) -> list[dict[str, int]]:

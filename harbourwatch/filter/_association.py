@@ -22,6 +22,11 @@ from .assignment import kbest_assignments
 
 IntArray = NDArray[np.int64]
 Array = NDArray[np.float64]
+#: Table and weights of a cluster of one Bernoulli with one hypothesis (shared, read-only).
+LONE_TABLE = np.zeros((1, 1), np.int64)
+LONE_TABLE.flags.writeable = False
+LONE_LOGW = np.zeros(1)
+LONE_LOGW.flags.writeable = False
 #: Groups with more plots than this get one child per parent (the best assignment).
 LARGE_GROUP_PLOTS = 40
 
@@ -89,7 +94,7 @@ def update_group(
     *,
     max_hyp: int,
     count_cap: Callable[[str], None],
-) -> tuple[list[Bernoulli], IntArray, Array]:
+) -> tuple[list[Bernoulli], list[list[int]], list[float]]:
     """Children of every global hypothesis of the merged group; unpruned."""
     if len(clusters) == 1:
         c = clusters[0]
@@ -110,15 +115,19 @@ def update_group(
     keys: list[dict[tuple[int, int], int]] = [{} for _ in range(nb)]
     rows: list[list[int]] = []
     weights: list[float] = []
-    if mg:
+    if mg > 1:
         base_C = np.full((mg, nb + mg), np.inf)
         base_C[np.arange(mg), nb + np.arange(mg)] = -ctx.ln_new[plots]
     p_detect, ln_miss, det_pairs, ln_det = ctx.p_detect, ctx.ln_miss, ctx.det_pairs, ctx.ln_det
+    ln_new_one = float(-ctx.ln_new[plots[0]]) if mg == 1 else 0.0
     table_l = table.tolist()
+    logw_l = logw.tolist()
     for g, parent in enumerate(table_l):
         ln_miss_total = 0.0
         gated = False
-        if mg:
+        # one plot: the options are listed directly as (cost, column)
+        options = [(ln_new_one, nb)] if mg == 1 else []
+        if mg > 1:
             C = base_C.copy()
         for i, h in enumerate(parent):
             if h < 0:
@@ -130,19 +139,26 @@ def update_group(
             for j, pair in det_pairs.get(s, ()):
                 jl = jloc.get(j)
                 if jl is not None:
-                    C[jl, i] = ln_miss[s] - ln_det[pair]
+                    if mg == 1:
+                        options.append((float(ln_miss[s] - ln_det[pair]), i))
+                    else:
+                        C[jl, i] = ln_miss[s] - ln_det[pair]
                     gated = True
+        children: list[tuple[float, list[int]]]
         if not mg:
             children = [(0.0, [])]
         elif not gated:
             children = [(float(-ctx.ln_new[plots].sum()), list(range(nb, nb + mg)))]
         else:
-            k = max(1, math.ceil(max_hyp * math.exp(logw[g])))
+            k = max(1, math.ceil(max_hyp * math.exp(logw_l[g])))
             if mg > LARGE_GROUP_PLOTS:
                 if k > 1:
                     count_cap("large_group")
                 k = 1
-            children = [(c, a.tolist()) for c, a in _children(C, k)]
+            if mg == 1:
+                children = [(c, [col]) for c, col in sorted(options)[:k]]
+            else:
+                children = [(c, a.tolist()) for c, a in _children(C, k)]
         for cost, cols in children:
             took = {c: j for j, c in enumerate(cols) if c < nb}
             row = []
@@ -166,16 +182,97 @@ def update_group(
                 row.append(idx)
             row.extend(0 if c == nb + j else -1 for j, c in enumerate(cols))
             rows.append(row)
-            weights.append(logw[g] + ln_miss_total - cost)
+            weights.append(logw_l[g] + ln_miss_total - cost)
     out_berns = [Bernoulli(b.bid, lhs) for b, lhs in zip(berns, new_lhs, strict=True)]
     out_berns.extend(ctx.born(j) for j in plots)
-    return out_berns, np.array(rows, np.int64).reshape(len(rows), nb + mg), np.array(weights)
+    return out_berns, rows, weights
+
+
+def update_single(
+    c: Cluster, plots: list[int], ctx: ScanContext, *, max_hyp: int
+) -> tuple[list[Bernoulli], list[list[int]], list[float]]:
+    """:func:`update_group` for the common case of one Bernoulli and at most one plot.
+
+    Same children, same order, same weights; only the generic bookkeeping
+    is left out.
+    """
+    (b,) = c.berns
+    mg = len(plots)
+    j = plots[0] if mg else -1
+    cost_new = float(-ctx.ln_new[j]) if mg else 0.0
+    p_detect, ln_miss, det_pairs, ln_det = ctx.p_detect, ctx.ln_miss, ctx.det_pairs, ctx.ln_det
+    new_lhs: list[LocalHyp] = []
+    keys: dict[tuple[int, int], int] = {}
+    rows: list[list[int]] = []
+    weights: list[float] = []
+    for h, w in zip(c.table[:, 0].tolist(), c.logw.tolist(), strict=True):
+        miss = 0.0
+        pair = -1
+        if h >= 0:
+            s = b.lhs[h].slot
+            if s >= 0 and p_detect[s] > 0.0:
+                miss = float(ln_miss[s])
+                if mg:
+                    for jj, p in det_pairs.get(s, ()):
+                        if jj == j:
+                            pair = p
+                            break
+        if not mg:
+            children = [(0.0, -1)]
+        elif pair < 0:
+            children = [(cost_new, 1)]
+        else:
+            k = max(1, math.ceil(max_hyp * math.exp(w)))
+            children = sorted([(cost_new, 1), (miss - float(ln_det[pair]), 0)])[:k]
+        for cost, col in children:
+            if h < 0:
+                idx = -1
+            else:
+                key = (h, j if col == 0 else -1)
+                idx = keys.get(key, -1)
+                if idx < 0:
+                    old = b.lhs[h]
+                    child = ctx.det_child(pair, j) if col == 0 else ctx.miss_child(old)
+                    idx = len(new_lhs)
+                    new_lhs.append(child)
+                    keys[key] = idx
+            rows.append([idx, 0 if col == 1 else -1] if mg else [idx])
+            weights.append(w + miss - cost)
+    out = [Bernoulli(b.bid, new_lhs)]
+    if mg:
+        out.append(ctx.born(j))
+    return out, rows, weights
+
+
+def _lse(w: list[float]) -> float:
+    m = max(w)
+    return m + math.log(math.fsum(math.exp(x - m) for x in w))
+
+
+def _merge_rows(rows: list[list[int]], logw: list[float]) -> tuple[list[list[int]], list[float]]:
+    """Merge identical rows (global hypotheses) by adding their weights; keeps first order."""
+    if len(rows) <= 1:
+        return rows, logw
+    acc: dict[tuple[int, ...], int] = {}
+    out_rows: list[list[int]] = []
+    out_w: list[float] = []
+    for row, w in zip(rows, logw, strict=True):
+        key = tuple(row)
+        k = acc.get(key)
+        if k is None:
+            acc[key] = len(out_rows)
+            out_rows.append(row)
+            out_w.append(w)
+        else:
+            a, b = out_w[k], w
+            out_w[k] = max(a, b) + math.log1p(math.exp(-abs(a - b)))
+    return out_rows, out_w
 
 
 def prune(
     berns: list[Bernoulli],
-    table: IntArray,
-    logw: Array,
+    rows: list[list[int]],
+    logw: list[float],
     *,
     existence_prune: float,
     log_weight_prune: float,
@@ -185,87 +282,102 @@ def prune(
     node_parent: IntArray | None = None,
     n_back: int = 0,
 ) -> list[Cluster]:
-    """Prune a cluster's hypotheses, clean up the table and split off independent Bernoullis."""
-    table = table.copy()
+    """Prune a cluster's hypotheses, clean up the table and split off independent Bernoullis.
+
+    ``rows`` (one list per global hypothesis, local hypothesis index per
+    Bernoulli or -1) is modified in place. Tables are tiny, so plain Python
+    beats numpy here.
+    """
     # low-existence local hypotheses become "absent" (methods note §1.9)
     for i, b in enumerate(berns):
-        low = [k for k, lh in enumerate(b.lhs) if lh.r < existence_prune]
+        low = {k for k, lh in enumerate(b.lhs) if lh.r < existence_prune}
         if low:
-            col = table[:, i]
-            col[np.isin(col, low)] = -1
-    if logw.size > 1:
-        table, logw = _merge_duplicates(table, logw)
-        logw = logw - logsumexp(logw)
-        keep = logw >= -log_weight_prune + float(logw.max())
-        if keep.sum() > max_global:
+            for row in rows:
+                if row[i] in low:
+                    row[i] = -1
+    rows, logw = _merge_rows(rows, logw)
+    if len(rows) > 1:
+        best = max(logw)
+        keep = [g for g, w in enumerate(logw) if w >= best - log_weight_prune]
+        if len(keep) > max_global:
             count_cap("max_global_hypotheses")
-            order = np.argsort(-logw, kind="stable")
-            keep = np.zeros_like(keep)
-            keep[order[:max_global]] = True
-        if not keep.all():
-            table, logw = table[keep], logw[keep]
-    if n_back > 0 and node_parent is not None and logw.size > 1:
-        table, logw = _n_scan(berns, table, logw, node_parent, n_back)
-    if logw.size > 1:
-        # cap on local hypotheses per Bernoulli: keep those of the heaviest global hypotheses
-        for i in range(len(berns)):
-            if len(berns[i].lhs) <= max_local:
+            keep = sorted(keep, key=lambda g: -logw[g])[:max_global]
+            keep.sort()
+        if len(keep) < len(rows):
+            rows, logw = [rows[g] for g in keep], [logw[g] for g in keep]
+    if n_back > 0 and node_parent is not None and len(rows) > 1:
+        rows, logw = _n_scan(berns, rows, logw, node_parent, n_back)
+    if len(rows) > 1:
+        for i, b in enumerate(berns):
+            if len(b.lhs) <= max_local:
                 continue
-            col = table[:, i]
-            used = np.unique(col[col >= 0])
-            if used.size > max_local:
+            best_of: dict[int, float] = {}
+            for row, w in zip(rows, logw, strict=True):
+                h = row[i]
+                if h >= 0 and w > best_of.get(h, -math.inf):
+                    best_of[h] = w
+            if len(best_of) > max_local:
                 count_cap("max_local_hypotheses")
-                best = np.full(len(berns[i].lhs), -np.inf)
-                np.maximum.at(best, col[col >= 0], logw[col >= 0])
-                allowed = np.argsort(-best, kind="stable")[:max_local]
-                ok = (col < 0) | np.isin(col, allowed)
-                table, logw = table[ok], logw[ok]
-        logw = logw - logsumexp(logw)
-    else:
-        logw = np.zeros(1)
+                allowed = set(sorted(best_of, key=lambda h: (-best_of[h], h))[:max_local])
+                keep = [g for g, row in enumerate(rows) if row[i] < 0 or row[i] in allowed]
+                rows, logw = [rows[g] for g in keep], [logw[g] for g in keep]
     out: list[Cluster] = []
-    if logw.size == 1:  # one global hypothesis: every Bernoulli is independent
-        for b, h in zip(berns, table[0].tolist(), strict=True):
+    if len(rows) == 1:  # one global hypothesis: every Bernoulli is independent
+        for b, h in zip(berns, rows[0], strict=True):
             if h >= 0:
                 b.lhs = [b.lhs[h]]
-                out.append(Cluster([b], np.zeros((1, 1), np.int64), np.zeros(1)))
+                out.append(Cluster([b], LONE_TABLE, LONE_LOGW))
         return out
+    total = _lse(logw)
+    logw = [w - total for w in logw]
     shared_cols: list[int] = []
     for i, b in enumerate(berns):
-        col = table[:, i]
-        if (col < 0).all():
+        col = [row[i] for row in rows]
+        used = sorted({h for h in col if h >= 0})
+        if not used:
             continue  # absent everywhere: the Bernoulli is gone
-        used = np.unique(col[col >= 0])
-        if used.size != len(b.lhs):
-            remap = np.full(len(b.lhs), -1, np.int64)
-            remap[used] = np.arange(used.size)
-            b.lhs = [b.lhs[u] for u in used.tolist()]
-            table[:, i] = np.where(col >= 0, remap[np.maximum(col, 0)], -1)
-            col = table[:, i]
-        if (col == col[0]).all():  # independent of the rest: its own cluster
-            out.append(Cluster([b], col[:1].reshape(1, 1).copy(), np.zeros(1)))
+        if len(used) != len(b.lhs):
+            remap = {h: k for k, h in enumerate(used)}
+            b.lhs = [b.lhs[h] for h in used]
+            for row in rows:
+                if row[i] >= 0:
+                    row[i] = remap[row[i]]
+            col = [row[i] for row in rows]
+        if all(h == col[0] for h in col):  # independent of the rest: its own cluster
+            b.lhs = [b.lhs[col[0]]]
+            out.append(Cluster([b], LONE_TABLE, LONE_LOGW))
         else:
             shared_cols.append(i)
     if shared_cols:
-        sub = table[:, shared_cols]
-        sub, lw = _merge_duplicates(sub, logw)
-        lw = lw - logsumexp(lw)
-        out.append(Cluster([berns[i] for i in shared_cols], sub, lw))
+        sub, lw = _merge_rows([[row[i] for i in shared_cols] for row in rows], logw)
+        total = _lse(lw)
+        out.append(
+            Cluster(
+                [berns[i] for i in shared_cols],
+                np.array(sub, np.int64).reshape(len(sub), len(shared_cols)),
+                np.array([w - total for w in lw]),
+            )
+        )
     return out
 
 
 def _ancestor(parent: IntArray, node: int, n: int) -> int:
     """The node ``n`` steps up the chain, ``-2`` if the chain is shorter."""
+    item = parent.item
     for _ in range(n):
-        node = int(parent[node])
+        node = item(node)
         if node < 0:
             return -2
     return node
 
 
 def _n_scan(
-    berns: list[Bernoulli], table: IntArray, logw: Array, parent: IntArray, n_back: int
-) -> tuple[IntArray, Array]:
+    berns: list[Bernoulli],
+    rows: list[list[int]],
+    logw: list[float],
+    parent: IntArray,
+    n_back: int,
+) -> tuple[list[list[int]], list[float]]:
     """Track-oriented N-scan pruning (methods note §1.9).
 
     Drop the global hypotheses that disagree with the best one about a
@@ -273,41 +385,25 @@ def _n_scan(
     nodes up the chain of some Bernoulli, or that Bernoulli present in one and
     absent in the other while its chain is longer than ``n_back`` nodes.
     """
-    best = int(np.argmax(logw))
-    ok = np.ones(logw.size, bool)
+    best = max(range(len(logw)), key=logw.__getitem__)
+    ok = [True] * len(rows)
     for i, b in enumerate(berns):
-        col = table[:, i]
-        hb = int(col[best])
-        if (col == hb).all():
-            continue
-        anc = [_ancestor(parent, lh.node, n_back) for lh in b.lhs]
-        ref = anc[hb] if hb >= 0 else -2
-        for g in np.flatnonzero(col != hb):
-            h = int(col[g])
-            a = anc[h] if h >= 0 else -2
+        hb = rows[best][i]
+        anc = {-1: -2}
+        for row in rows:
+            h = row[i]
+            if h not in anc:
+                anc[h] = _ancestor(parent, b.lhs[h].node, n_back)
+        ref = anc[hb]
+        for g, row in enumerate(rows):
+            h = row[i]
+            if h == hb or not ok[g]:
+                continue
+            a = anc[h]
             if hb >= 0 and h >= 0:
                 if a != ref and a != -2 and ref != -2:
                     ok[g] = False
             elif a != -2 or ref != -2:  # present in one, absent in the other, and old
                 ok[g] = False
-    return table[ok], logw[ok]
-
-
-def _merge_duplicates(table: IntArray, logw: Array) -> tuple[IntArray, Array]:
-    """Merge identical rows by adding their weights."""
-    if table.shape[0] <= 1:
-        return table, logw
-    seen: dict[tuple[int, ...], int] = {}
-    first: list[int] = []
-    acc: list[float] = []
-    for g, row in enumerate(map(tuple, table.tolist())):
-        k = seen.get(row)
-        if k is None:
-            seen[row] = len(first)
-            first.append(g)
-            acc.append(float(logw[g]))
-        else:
-            acc[k] = float(np.logaddexp(acc[k], logw[g]))
-    if len(first) == table.shape[0]:
-        return table, logw
-    return table[first], np.array(acc)
+    keep = [g for g in range(len(rows)) if ok[g]]
+    return [rows[g] for g in keep], [logw[g] for g in keep]

@@ -3,7 +3,10 @@
 Estimator 1 of the methods note (§1.8): per cluster the global hypothesis of
 largest weight; every Bernoulli whose local hypothesis has ``r`` above the
 threshold; its most likely end time (argmax of β); the chain of nodes from
-its start to that end, RTS-smoothed (§6.3).
+its start to that end, RTS-smoothed (§6.3). A trajectory whose most
+likely end is "alive" but that was last seen well before the end of the feed
+(it left the cover, or coasted until it was given up) ends at its last plot:
+the missed detections after it carry no information about where it went.
 """
 
 from __future__ import annotations
@@ -79,6 +82,14 @@ def build_output(filt: _Filter) -> FilterOutput:
             if lh.r <= st.existence_threshold:
                 continue
             end_node, end_p, is_alive = lh.best_end()
+            if (is_alive or (lh.coasted and end_node == lh.node)) and (
+                nodes.t[end_node] < last_scan - st.as_seen_window_s
+            ):
+                # last seen well before the end of the feed (left the cover, or its radars
+                # went silent): it was last known at its last plot, not at the missed
+                # detections that followed while it was predicted inside a cover
+                while nodes.plot[end_node] < 0 and nodes.parent[end_node] >= 0:
+                    end_node = int(nodes.parent[end_node])
             idx = nodes.chain(end_node)
             chosen.append(
                 (
@@ -95,7 +106,7 @@ def build_output(filt: _Filter) -> FilterOutput:
     for k, (_, _, bid, (lh, idx, end_p, is_alive)) in enumerate(chosen):
         tid = f"T{k + 1}"
         ids[bid] = tid
-        t, fm, fP, pm, pP = nodes.moments(idx, filt.q)
+        t, fm, fP, pm, pP = nodes.moments(idx)
         ms, Ps = rts_smooth_scan(t, fm, fP, pm, pP)
         plots = nodes.plot[idx].copy()
         used_plots += int((plots >= 0).sum())
@@ -120,15 +131,13 @@ def build_output(filt: _Filter) -> FilterOutput:
     if filt.as_seen:
         tt = np.concatenate([np.full(r[1].size, r[0]) for r in filt.as_seen])
         bids = np.concatenate([r[1] for r in filt.as_seen])
-        leaves = np.concatenate([r[2] for r in filt.as_seen])
         names = {int(b): ids.get(int(b), f"P{int(b)}") for b in np.unique(bids)}
-        P = nodes.P[leaves]
         as_seen = AsSeenTable(
             time=tt,
             track=np.array([names[int(b)] for b in bids], dtype="<U16"),
-            mean=nodes.m[leaves].copy(),
-            sd=np.sqrt(0.5 * (P[:, 0, 0] + P[:, 2, 2])),
-            existence=np.concatenate([r[3] for r in filt.as_seen]),
+            mean=np.concatenate([r[2] for r in filt.as_seen]),
+            sd=np.concatenate([r[3] for r in filt.as_seen]),
+            existence=np.concatenate([r[4] for r in filt.as_seen]),
         )
     else:
         as_seen = AsSeenTable.empty()

@@ -11,9 +11,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.special import ndtr
 
-from ..models import cv_process_noise_batch, cv_transition_batch
 from . import SensorModel
-from .gaussian import kf_predict, log_likelihood, mahalanobis2_batch
 
 Array = NDArray[np.float64]
 _POS = [0, 2]
@@ -22,12 +20,18 @@ MIN_STEP_S = 1e-3
 
 
 def gate_pairs(  # type: ignore[no-untyped-def]
-    gate, q, pd, leaf_m, leaf_P, t_leaf, pm, pP, z, R, tj, tk
+    gate, motion, leaf_mm, leaf_mP, leaf_mu, pd, leaf_m, leaf_P, t_leaf, pm, pP, z, R, tj, tk
 ):
-    """Gated pairs ``(i, j, log-lik, node time, updated mean, updated cov)``.
+    """Gated pairs ``(i, j, log-lik, node time, merged mean, merged cov, mode means,
+    mode covs, mode probabilities)``.
 
-    ``pd`` selects the hypotheses that can be detected; ``pm, pP`` are their
-    predictions to the scan's reference time ``tk`` (for the pre-filter).
+    ``motion`` is the two-mode motion model; ``leaf_mm, leaf_mP, leaf_mu`` are
+    the per-mode moments of each hypothesis' leaf, ``leaf_m, leaf_P`` their
+    merge. ``pd`` selects the hypotheses that can be detected; ``pm, pP`` are
+    their predictions to the scan's reference time ``tk`` (for the
+    pre-filter). A pair passes the gate when the plot is inside the ellipsoid
+    of at least one mode's prediction; it is scored with the mode-mixture
+    likelihood (IMM).
     """
     m = z.shape[0]
     act = np.flatnonzero(pd > 0)
@@ -38,12 +42,17 @@ def gate_pairs(  # type: ignore[no-untyped-def]
         np.zeros(0),
         np.zeros((0, 4)),
         np.zeros((0, 4, 4)),
+        np.zeros((0, 2, 4)),
+        np.zeros((0, 2, 4, 4)),
+        np.zeros((0, 2)),
     )
     if m == 0 or act.size == 0:
         return empty
     # conservative Euclidean pre-filter, then the exact test at each plot's time
     pos = pm[act][:, _POS]
+    h = np.maximum(tk - t_leaf[act], 0.0)
     tr_p = pP[act, 0, 0] + pP[act, 2, 2] + leaf_P[act, 0, 0] + leaf_P[act, 2, 2]
+    tr_p = tr_p + 2.0 * motion.q_max * h**3 / 3.0  # room for the manoeuvre prediction
     tr_r = R[:, 0, 0] + R[:, 1, 1]
     speed = np.hypot(pm[act, 1], pm[act, 3])
     bound = np.sqrt(gate * (2.0 * tr_p[:, None] + tr_r[None, :]))
@@ -55,16 +64,13 @@ def gate_pairs(  # type: ignore[no-untyped-def]
     ii = act[a]
     stamp = np.maximum(tj[jj], t_leaf[ii] + MIN_STEP_S)
     dtp = stamp - t_leaf[ii]
-    mp, Pp = kf_predict(
-        leaf_m[ii], leaf_P[ii], cv_transition_batch(dtp), cv_process_noise_batch(dtp, q)
+    nis, ll, um, uP, post, m_upd, P_upd = motion.score_and_update(
+        leaf_mm[ii], leaf_mP[ii], leaf_mu[ii], dtp, z[jj], R[jj]
     )
-    S = Pp[:, _POS][:, :, _POS] + R[jj]
-    nu = z[jj] - mp[:, _POS]
-    ok = mahalanobis2_batch(nu, S) < gate
-    ii, jj, stamp, mp, Pp, S, nu = ii[ok], jj[ok], stamp[ok], mp[ok], Pp[ok], S[ok], nu[ok]
-    ll = log_likelihood(nu, S)
-    m_upd, P_upd = batch_update(mp, Pp, nu, S, R[jj])
-    return ii, jj, ll, stamp, m_upd, P_upd
+    ok = nis < gate
+    return (
+        ii[ok], jj[ok], ll[ok], stamp[ok], m_upd[ok], P_upd[ok], um[ok], uP[ok], post[ok]
+    )
 
 
 def cover_detection(pm: Array, pP: Array, sensor: SensorModel) -> Array:

@@ -75,7 +75,7 @@ def new_trajectory_weight(e: float, clutter: float) -> tuple[float, float]:
 class LocalHyp:
     """One local hypothesis of a Bernoulli (mutable only while being built)."""
 
-    __slots__ = ("node", "r", "alive", "end_nodes", "end_p", "frozen", "slot")
+    __slots__ = ("node", "r", "alive", "end_nodes", "end_p", "frozen", "slot", "coasted")
 
     def __init__(
         self,
@@ -93,6 +93,7 @@ class LocalHyp:
         self.end_p = end_p
         self.frozen = frozen
         self.slot = -1  # index into the current scan's arrays, -1 if not active
+        self.coasted = False  # frozen because it went unobserved too long (not by β)
 
     def best_end(self) -> tuple[int, float, bool]:
         """``(node, probability, is_alive)`` of the most likely end time."""
@@ -102,8 +103,9 @@ class LocalHyp:
                 return self.end_nodes[k], self.end_p[k], False
         return self.node, self.alive, True
 
-    def freeze(self) -> None:
+    def freeze(self, *, coasted: bool = False) -> None:
         """Stop the hypothesis: the alive mass goes to "ended at the leaf"."""
+        self.coasted = coasted
         if self.alive > 0.0:
             if self.end_nodes and self.end_nodes[-1] == self.node:
                 self.end_p = self.end_p[:-1] + (self.end_p[-1] + self.alive,)

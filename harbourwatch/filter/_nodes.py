@@ -2,14 +2,20 @@
 
 A node is one state of a trajectory: its time, the filtered mean and
 covariance of that state, the plot used (``-1`` for a missed detection), the
-sensor of the scan and a pointer to its parent node (``-1`` at the start).
+sensor of the scan, a pointer to its parent node (``-1`` at the start), the
+per-mode means ``mm`` and covariances ``mP`` and mode probabilities ``mu`` of
+the two-mode motion model (see :mod:`._motion`; ``m``, ``P`` are their merge),
+and the effective process-noise intensity ``qin`` of the step into it, for the
+smoother.
 Hypotheses that share history share nodes; a whole trajectory is the chain
 from a leaf back to its root and is smoothed on demand.
 
 Nodes live in growable columnar arrays (not one Python object each). The
 one-step predictions needed by the smoother are not stored: they are
 recomputed from the parent's filtered moments with the same ``F(Δt)``,
-``Q(Δt)`` the filter used, which halves the memory.
+``Q(Δt)`` the filter used, which halves the memory. When the store is full,
+nodes no hypothesis can reach any more (pruned branches, clutter that
+started nothing) are dropped by :meth:`NodeStore.compact` before it grows.
 """
 
 from __future__ import annotations
@@ -27,7 +33,8 @@ IntArray = NDArray[np.int64]
 class NodeStore:
     """Append-only columnar store of filtered trajectory nodes."""
 
-    __slots__ = ("n", "t", "parent", "plot", "sensor", "m", "P")
+    __slots__ = ("n", "t", "parent", "plot", "sensor", "m", "P", "mm", "mP", "mu", "qin")
+    _COLUMNS = ("t", "parent", "plot", "sensor", "m", "P", "mm", "mP", "mu", "qin")
 
     def __init__(self, capacity: int = 4096) -> None:
         self.n = 0
@@ -37,6 +44,10 @@ class NodeStore:
         self.sensor = np.empty(capacity, np.int64)
         self.m = np.empty((capacity, 4))
         self.P = np.empty((capacity, 4, 4))
+        self.mm = np.empty((capacity, 2, 4))
+        self.mP = np.empty((capacity, 2, 4, 4))
+        self.mu = np.empty((capacity, 2))
+        self.qin = np.empty(capacity)
 
     def _reserve(self, extra: int) -> None:
         need = self.n + extra
@@ -44,7 +55,7 @@ class NodeStore:
         if need <= cap:
             return
         new = max(need, 2 * cap)
-        for name in ("t", "parent", "plot", "sensor", "m", "P"):
+        for name in self._COLUMNS:
             old = getattr(self, name)
             arr = np.empty((new,) + old.shape[1:], old.dtype)
             arr[: self.n] = old[: self.n]
@@ -58,6 +69,10 @@ class NodeStore:
         sensor: IntArray | int,
         m: Array,
         P: Array,
+        mm: Array,
+        mP: Array,
+        mu: Array,
+        qin: Array,
     ) -> IntArray:
         """Append ``len(t)`` nodes; return their indices."""
         k = int(np.size(t))
@@ -69,6 +84,10 @@ class NodeStore:
         self.sensor[s] = sensor
         self.m[s] = m
         self.P[s] = P
+        self.mm[s] = mm
+        self.mP[s] = mP
+        self.mu[s] = mu
+        self.qin[s] = qin
         idx = np.arange(self.n, self.n + k, dtype=np.int64)
         self.n += k
         return idx
@@ -76,18 +95,19 @@ class NodeStore:
     def chain(self, leaf: int) -> IntArray:
         """Node indices from the root to ``leaf`` (inclusive), in time order."""
         out = []
-        parent = self.parent
+        item = self.parent.item
         i = int(leaf)
         while i >= 0:
             out.append(i)
-            i = int(parent[i])
+            i = item(i)
         return np.asarray(out[::-1], dtype=np.int64)
 
-    def moments(self, idx: IntArray, q: float) -> tuple[Array, Array, Array, Array, Array]:
+    def moments(self, idx: IntArray) -> tuple[Array, Array, Array, Array, Array]:
         """Times, filtered and one-step predicted moments along a chain.
 
         ``pred[0]`` is a copy of ``filt[0]``; ``pred[k]`` is the prediction of
-        ``filt[k-1]`` to ``time[k]`` (what the filter used at that step).
+        ``filt[k-1]`` to ``time[k]`` with the ``q`` the filter used for that
+        step (``qin`` of node ``k``).
         """
         t = self.t[idx].copy()
         fm = self.m[idx].copy()
@@ -97,7 +117,8 @@ class NodeStore:
         if idx.size > 1:
             dt = np.diff(t)
             pm[1:], pP[1:] = kf_predict(
-                fm[:-1], fP[:-1], cv_transition_batch(dt), cv_process_noise_batch(dt, q)
+                fm[:-1], fP[:-1], cv_transition_batch(dt),
+                cv_process_noise_batch(dt, 1.0) * self.qin[idx[1:], None, None],
             )
         return t, fm, fP, pm, pP
 
@@ -115,7 +136,7 @@ class NodeStore:
         remap = np.full(self.n + 1, -1, np.int64)  # last slot maps parent -1 to -1
         remap[old] = np.arange(old.size)
         k = old.size
-        for name in ("t", "plot", "sensor", "m", "P"):
+        for name in ("t", "plot", "sensor", "m", "P", "mm", "mP", "mu", "qin"):
             arr = getattr(self, name)
             arr[:k] = arr[old]
         self.parent[:k] = remap[self.parent[old]]

@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 import shapely
@@ -45,7 +46,7 @@ class UndetectedDensity:
         initial_vessels: float,
         arrivals_per_hour: float,
         mean_lifetime_s: float,
-        regions: Sequence[tuple[object, float]] = (),
+        regions: Sequence[tuple[Any, float]] = (),
         cell_m: float | None = None,
     ) -> None:
         sites_a = np.asarray(sites, float).reshape(-1, 2)

@@ -60,9 +60,15 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..config import FilterSettings
-from ..models import cv_process_noise_batch, cv_transition_batch
 from . import BirthRegion, FilterOutput, MeasurementScan, SensorModel
-from ._association import ScanContext, prune, update_group
+from ._association import (
+    LONE_LOGW,
+    LONE_TABLE,
+    ScanContext,
+    prune,
+    update_group,
+    update_single,
+)
 from ._estimate import build_output
 from ._gating import MIN_STEP_S, cover_detection, gate_pairs
 from ._hypotheses import (
@@ -74,16 +80,15 @@ from ._hypotheses import (
     detection_log_weight,
     miss_update,
 )
+from ._motion import TwoModeMotion
 from ._nodes import NodeStore
 from ._undetected import UndetectedDensity
-from .gaussian import kf_predict
 
 __all__ = ["run_tpmbm"]
 
 Array = NDArray[np.float64]
 _POS = [0, 2]
-_ONE = np.zeros((1, 1), np.int64)  # table of a lone Bernoulli (shared, never written)
-_ZERO = np.zeros(1)
+_COMPACT_MIN = 1 << 16  # nodes: below this the store just grows
 _CAP_TEXT = {
     "max_global_hypotheses": "global hypotheses of a cluster cut to max_global_hypotheses",
     "max_local_hypotheses": "local hypotheses of a trajectory cut to max_local_hypotheses",
@@ -93,6 +98,8 @@ _CAP_TEXT = {
 
 
 class _Filter:
+    """The filter's state between scans: node store, undetected density, clusters."""
+
     def __init__(
         self,
         sensors: Sequence[SensorModel],
@@ -101,7 +108,12 @@ class _Filter:
     ) -> None:
         self.sensors = {s.index: s for s in sensors}
         self.settings = settings
-        self.q = settings.accel_psd_m2_s3
+        self.motion = TwoModeMotion(
+            settings.accel_psd_m2_s3,
+            settings.manoeuvre_accel_psd_m2_s3,
+            settings.manoeuvre_interval_s,
+            settings.manoeuvre_duration_s,
+        )
         self.gate = -2.0 * math.log1p(-settings.gate_probability)  # chi-square, 2 dof
         order = sorted(self.sensors)
         self.sensor_pos = {s: i for i, s in enumerate(order)}
@@ -127,7 +139,7 @@ class _Filter:
         self.scan_count = 0
         self.scan_index = 0
         self.last_time = -math.inf
-        self.as_seen: list[tuple[float, NDArray[np.int64], NDArray[np.int64], Array]] = []
+        self.as_seen: list[tuple[float, NDArray[np.int64], Array, Array, Array]] = []
 
     # -- bookkeeping -------------------------------------------------------------------
     def count_cap(self, name: str) -> None:
@@ -144,6 +156,7 @@ class _Filter:
 
     # -- one scan ----------------------------------------------------------------------
     def process(self, scan: MeasurementScan, scan_index: int) -> None:
+        """Predict, gate, associate, prune and record the as-seen estimate for one scan."""
         self.scan_index = scan_index
         self.scan_count += 1
         st = self.settings
@@ -178,11 +191,12 @@ class _Filter:
         t_leaf = self.nodes.t[node_idx]
         leaf_m = self.nodes.m[node_idx]
         leaf_P = self.nodes.P[node_idx]
+        leaf_mm = self.nodes.mm[node_idx]
+        leaf_mP = self.nodes.mP[node_idx]
+        leaf_mu = self.nodes.mu[node_idx]
         tmiss = np.maximum(tk, t_leaf + MIN_STEP_S)
         dt = tmiss - t_leaf
-        pm, pP = kf_predict(
-            leaf_m, leaf_P, cv_transition_batch(dt), cv_process_noise_batch(dt, self.q)
-        )
+        pmm, pmP, mu_pred, pm, pP = self.motion.predict(leaf_mm, leaf_mP, leaf_mu, dt)
         ps = np.exp(-dt / st.mean_lifetime_s)
         # hypotheses that have coasted too long (out of every cover, or radars silent) end
         coast = (tk - t_leaf > st.max_coast_s) | (
@@ -190,7 +204,7 @@ class _Filter:
         )
         if coast.any():
             for s in np.flatnonzero(coast):
-                lhs[s].freeze()
+                lhs[s].freeze(coasted=True)
                 lhs[s].slot = -1
         pd = np.where(coast, 0.0, cover_detection(pm, pP, sensor))
         # a missed detection makes a node only where the predicted mean is inside the range
@@ -205,8 +219,13 @@ class _Filter:
         # gating and detection children (vectorised over hypothesis x plot)
         t0 = _time.perf_counter()
         z, R, tj = scan.z, scan.R, scan.plot_time
-        pairs = gate_pairs(self.gate, self.q, pd, leaf_m, leaf_P, t_leaf, pm, pP, z, R, tj, tk)
-        ii, jj, ll, stamp, m_upd, P_upd = pairs
+        pairs = gate_pairs(
+            self.gate, self.motion, leaf_mm, leaf_mP, leaf_mu, pd, leaf_m, leaf_P, t_leaf,
+            pm, pP, z, R, tj, tk,
+        )
+        ii, jj, ll, stamp, m_upd, P_upd, um, uP, mu_upd = pairs
+        self._pair_modes = (um, uP, mu_upd)
+        self._miss_modes = (pmm, pmP, mu_pred)
         self._pair_plot = jj
         ln_det = detection_log_weight(r[ii], alive_pred[ii], pd[ii], ll)
         det_pairs: dict[int, list[tuple[int, int]]] = defaultdict(list)
@@ -219,8 +238,9 @@ class _Filter:
         )
         e = np.where(in_range, sensor.detection_probability, 0.0) * self.ppp.density(z)
         lam = sensor.clutter_intensity
-        ln_new = np.log(e + lam) if m else np.zeros(0)
-        r_new = e / (e + lam) if m else np.zeros(0)
+        w_new = np.maximum(e + lam, 1e-300)  # > 0: every plot can always be clutter
+        ln_new = np.log(w_new)
+        r_new = e / w_new
         self.timers["gate"] += _time.perf_counter() - t0
 
         # pending nodes, materialised in one batch at the end of the scan
@@ -296,12 +316,17 @@ class _Filter:
         new_clusters: list[Cluster] = []
         busy = touched | set(miss_only)
         keep_clusters = [c for ci, c in enumerate(self.clusters) if ci not in busy]
-        work = [([], [ci]) for ci in miss_only] + sorted(groups.values(), key=lambda g: g[0])
+        work: list[tuple[list[int], list[int]]] = [([], [ci]) for ci in miss_only] + sorted(
+            groups.values(), key=lambda g: g[0]
+        )
         updated = []
         for plots, cis in work:
             if self._fast_path(plots, cis, ctx, r_new, new_clusters):
                 continue
             cls = [self.clusters[ci] for ci in cis]
+            if len(cls) == 1 and len(cls[0].berns) == 1 and len(plots) <= 1:
+                updated.append(update_single(cls[0], plots, ctx, max_hyp=st.max_global_hypotheses))
+                continue
             updated.append(
                 update_group(
                     cls, plots, ctx, max_hyp=st.max_global_hypotheses, count_cap=self.count_cap
@@ -335,6 +360,7 @@ class _Filter:
         self.max_berns = max(self.max_berns, nb)
         self.max_hyps = max([self.max_hyps] + [c.logw.size for c in new_clusters])
         self._record_as_seen(tk)
+        self._maybe_compact()
         self.timers["bookkeeping"] += _time.perf_counter() - t0
 
     def _fast_path(self, plots, cis, ctx, r_new, out) -> bool:  # type: ignore[no-untyped-def]
@@ -352,7 +378,7 @@ class _Filter:
                 return False
             j = plots[0]
             if r_new[j] >= thr:
-                out.append(Cluster([ctx.born(j)], _ONE, _ZERO))
+                out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
             return True
         if len(cis) != 1:
             return False
@@ -364,7 +390,7 @@ class _Filter:
         if not plots:
             child = ctx.miss_child(lh)
             if child.r >= thr:
-                out.append(Cluster([Bernoulli(b.bid, [child])], _ONE, _ZERO))
+                out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
             return True
         j = plots[0]
         s = lh.slot
@@ -374,14 +400,14 @@ class _Filter:
         d = ctx.ln_miss[s] + ctx.ln_new[j] - ctx.ln_det[pairs[0]]
         if d < -st.log_weight_prune:
             child = ctx.det_child(pairs[0], j)
-            out.append(Cluster([Bernoulli(b.bid, [child])], _ONE, _ZERO))
+            out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
             return True
         if d > st.log_weight_prune:
             child = ctx.miss_child(lh)
             if child.r >= thr:
-                out.append(Cluster([Bernoulli(b.bid, [child])], _ONE, _ZERO))
+                out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
             if r_new[j] >= thr:
-                out.append(Cluster([ctx.born(j)], _ONE, _ZERO))
+                out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
             return True
         return False
 
@@ -408,12 +434,23 @@ class _Filter:
         M[ni, 0], M[ni, 2] = z[j, 0], z[j, 1]
         P[np.ix_(ni, _POS, _POS)] = R[j]
         P[ni, 1, 1] = P[ni, 3, 3] = var_v
-        self.nodes.add_batch(t, par, plot, scan.sensor, M, P)
+        # motion modes (see ._motion): a missed detection carries the predicted
+        # per-mode moments, a detection the updated ones; a new trajectory starts
+        # with both modes equal to its initial Gaussian
+        mm = np.repeat(M[:, None, :], 2, axis=1)
+        mP = np.repeat(P[:, None, :, :], 2, axis=1)
+        mu = self.motion.initial_mu(k)
+        for sel, (a_m, a_P, a_mu) in ((mi, self._miss_modes), (di, self._pair_modes)):
+            mm[sel], mP[sel], mu[sel] = a_m[src[sel]], a_P[src[sel]], a_mu[src[sel]]
+        self.nodes.add_batch(t, par, plot, scan.sensor, M, P, mm, mP, mu, self.motion.q_eff(mu))
 
     # -- estimates ---------------------------------------------------------------------
     def _record_as_seen(self, tk: float) -> None:
-        """Cheap filtered estimate of this moment (methods note §D): leaf of each Bernoulli
-        of the best global hypothesis with ``r`` above the threshold and most likely alive."""
+        """Record the cheap filtered estimate of this moment (methods note §D).
+
+        The leaf of each Bernoulli of the best global hypothesis with ``r``
+        above the threshold whose most likely end is "alive" and recent.
+        """
         thr = self.settings.existence_threshold
         oldest = tk - self.settings.as_seen_window_s
         t_node = self.nodes.t
@@ -434,9 +471,35 @@ class _Filter:
                 leaves.append(lh.node)
                 rs.append(lh.r)
         if bids:
+            idx = np.array(leaves, np.int64)
+            P = self.nodes.P[idx]
             self.as_seen.append(
-                (tk, np.array(bids, np.int64), np.array(leaves, np.int64), np.array(rs))
+                (
+                    tk,
+                    np.array(bids, np.int64),
+                    self.nodes.m[idx],
+                    np.sqrt(0.5 * (P[:, 0, 0] + P[:, 2, 2])),
+                    np.array(rs),
+                )
             )
+
+    def _maybe_compact(self) -> None:
+        """Drop nodes no hypothesis can reach any more, instead of growing the store."""
+        nodes = self.nodes
+        cap = nodes.t.size
+        if nodes.n < 0.9 * cap or nodes.n < _COMPACT_MIN:
+            return
+        all_lhs = [lh for c in self.retired + self.clusters for b in c.berns for lh in b.lhs]
+        live = [lh.node for lh in all_lhs]
+        for lh in all_lhs:
+            live.extend(lh.end_nodes)
+        remap = nodes.compact(np.array(live, np.int64))
+        for lh in all_lhs:
+            lh.node = int(remap[lh.node])
+            if lh.end_nodes:
+                lh.end_nodes = tuple(remap[list(lh.end_nodes)].tolist())
+        if nodes.n > 0.5 * cap:  # mostly live: make room now
+            nodes._reserve(cap - nodes.n + 1)
 
 
 def _finished(c: Cluster) -> bool:
