@@ -268,7 +268,10 @@ def _micro_to_seconds(us: NDArray[np.int64]) -> NDArray[np.float64]:
 
 
 def _epoch(values: NDArray[np.float64]) -> NDArray[np.float64]:
-    us = np.round(np.where(np.isfinite(values), values, 0.0) * 1e6).astype(np.int64)
+    # out-of-range values are reported by the caller's range check; here they
+    # only must not overflow the integer conversion
+    ok = np.isfinite(values) & (np.abs(values) < 1e12)
+    us = np.round(np.where(ok, values, 0.0) * 1e6).astype(np.int64)
     return _micro_to_seconds(us)
 
 

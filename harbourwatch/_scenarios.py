@@ -68,7 +68,7 @@ def _rect(e0: float, n0: float, e1: float, n1: float) -> list[tuple[float, float
 
 _ZONES: list[tuple[str, str, str, list[tuple[float, float]]]] = [
     ("inner-basin", "Calder inner basin", "anchorage", _rect(-1460, 60, 1460, 1210)),
-    ("fairway", "Calder fairway (8 kn limit)", "fairway", _rect(1000, -5000, 1400, 200)),
+    ("fairway", "Calder fairway", "fairway", _rect(1000, -5000, 1400, 200)),
     ("naval-berth", "Calder naval berth", "restricted", _rect(2300, -300, 3100, -15)),
     ("range-area", "Sound exercise range", "restricted", _rect(-9000, -8000, -4500, -4000)),
     ("outer-roads", "Calder outer roads", "anchorage", _rect(-500, -9500, 5000, -5600)),
@@ -356,7 +356,8 @@ def _bench(seed: int, duration_s: float | None) -> Scenario:
                                  float(rng.uniform(0, 360)), kn, legs))
             t += length / (kn * 1852.0 / 3600.0) + 40.0 + rng.uniform(0, 60.0)
     return Scenario(name="bench", start_epoch_s=START_EPOCH_S, duration_s=dur,
-                    sensors=(SimSensor(config=a), SimSensor(config=b)), vessels=tuple(vessels))
+                    sensors=(SimSensor(config=a), SimSensor(config=b)), vessels=tuple(vessels),
+                    zones_geojson=port_calder_zones_geojson(), rules_toml=PORT_CALDER_RULES)
 
 
 SCENARIOS: dict[str, ScenarioSpec] = {

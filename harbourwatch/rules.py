@@ -41,7 +41,6 @@ from __future__ import annotations
 import csv
 import hashlib
 import os
-import tempfile
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -51,6 +50,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from ._io import atomic_open
 from ._rule_kinds import (
     GAP_TOLERANCE_S,
     NEAR_MISS_SD,
@@ -463,19 +463,12 @@ def write_alerts_csv(alerts: Sequence[Alert], path: str | os.PathLike[str]) -> N
     path = Path(path)
     starts: list[str] = [str(x) for x in format_utc([a.start for a in alerts])] if alerts else []
     ends: list[str] = [str(x) for x in format_utc([a.end for a in alerts])] if alerts else []
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", newline="", encoding="utf-8") as fh:
-            w = csv.writer(fh)
-            w.writerow(ALERT_COLUMNS)
-            for a, s, e in zip(alerts, starts, ends, strict=True):
-                w.writerow([a.rule, a.kind, a.track, a.other_track, a.zone, str(s), str(e),
-                            f"{a.probability:.3f}", a.summary])
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    with atomic_open(path, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(ALERT_COLUMNS)
+        for a, s, e in zip(alerts, starts, ends, strict=True):
+            w.writerow([a.rule, a.kind, a.track, a.other_track, a.zone, str(s), str(e),
+                        f"{a.probability:.3f}", a.summary])
 
 
 def alerts_table(alerts: Sequence[Alert]) -> str:

@@ -10,11 +10,40 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import NDArray
 from scipy.special import ndtr
+from scipy.stats import chi2
 
 from . import SensorModel
 
 Array = NDArray[np.float64]
 _POS = [0, 2]
+
+def chi2_gate(gate_probability: float, dim: int = 2) -> float:
+    """Squared-Mahalanobis gate that keeps a true plot with probability ``gate_probability``.
+
+    The innovation of a correct plot has ``νᵀ S⁻¹ ν ~ χ²(dim)``, so the gate is
+    the ``gate_probability`` quantile of that distribution. For ``dim = 2`` it
+    equals ``-2 ln(1 - P)``.
+
+    Parameters
+    ----------
+    gate_probability
+        In ``(0, 1)``.
+    dim
+        Measurement dimension (2 for a position plot).
+
+    Examples
+    --------
+    >>> round(chi2_gate(0.99), 4)
+    9.2103
+    """
+    p = float(gate_probability)
+    if not 0.0 < p < 1.0:
+        raise ValueError(f"gate probability must lie in (0, 1), got {gate_probability!r}")
+    if int(dim) != dim or dim < 1:
+        raise ValueError(f"dimension must be a positive integer, got {dim!r}")
+    return float(chi2.ppf(p, int(dim)))
+
+
 #: Smallest step between two nodes of one chain (keeps chain times increasing).
 MIN_STEP_S = 1e-3
 

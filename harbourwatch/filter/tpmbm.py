@@ -70,7 +70,7 @@ from ._association import (
     update_single,
 )
 from ._estimate import build_output
-from ._gating import MIN_STEP_S, cover_detection, gate_pairs
+from ._gating import MIN_STEP_S, chi2_gate, cover_detection, gate_pairs
 from ._hypotheses import (
     ALIVE_FLOOR,
     Bernoulli,
@@ -114,7 +114,7 @@ class _Filter:
             settings.manoeuvre_interval_s,
             settings.manoeuvre_duration_s,
         )
-        self.gate = -2.0 * math.log1p(-settings.gate_probability)  # chi-square, 2 dof
+        self.gate = chi2_gate(settings.gate_probability)
         order = sorted(self.sensors)
         self.sensor_pos = {s: i for i, s in enumerate(order)}
         self.ppp = UndetectedDensity(
