@@ -181,3 +181,10 @@ def test_user_tiles_are_requested_only_from_the_given_server(browser: sync_api.B
     pg.page.wait_for_selector(".leaflet-tile", state="attached")
     ctx.close()
     assert pg.blocked and all(u.startswith("https://tiles.calder-sound.invalid/") for u in pg.blocked)
+
+
+def test_page_load_seconds_measures_a_drawn_map(site: Path) -> None:
+    from harbourwatch.report.screenshot import page_load_seconds
+
+    secs = page_load_seconds(site / "report.html")
+    assert secs is not None and 0.0 < secs < 30.0

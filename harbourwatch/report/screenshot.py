@@ -13,7 +13,7 @@ import os
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
-__all__ = ["CHROMIUM", "CHROMIUM_ARGS", "take_screenshots", "block_network"]
+__all__ = ["CHROMIUM", "CHROMIUM_ARGS", "take_screenshots", "block_network", "page_load_seconds"]
 
 CHROMIUM = "/usr/bin/chromium"
 CHROMIUM_ARGS = [
@@ -83,3 +83,35 @@ def _shoot(sync_playwright, pages: list[Path], shots: Path) -> list[Path]:  # ty
         finally:
             browser.close()
     return written
+
+
+def page_load_seconds(page_path: Path) -> float | None:
+    """Seconds from navigation to a drawn map for one page (``None`` without a browser).
+
+    Measured with the network blocked, in a fresh headless Chromium: until the
+    ``load`` event and the map's vector layer exist. Used by the benchmark.
+    """
+    if not os.access(CHROMIUM, os.X_OK):
+        return None
+    try:
+        from playwright.sync_api import sync_playwright
+    except ImportError:
+        return None
+
+    def measure() -> float:
+        import time
+
+        with sync_playwright() as pw:
+            browser = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+            try:
+                page = browser.new_page(viewport={"width": 1280, "height": 900})
+                block_network(page)
+                t0 = time.perf_counter()
+                page.goto(Path(page_path).resolve().as_uri(), wait_until="load")
+                page.wait_for_selector(".folium-map .leaflet-overlay-pane svg", state="attached")
+                return time.perf_counter() - t0
+            finally:
+                browser.close()
+
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        return pool.submit(measure).result()
