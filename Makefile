@@ -36,7 +36,7 @@ lint: $(STAMP)
 typecheck: $(STAMP)
 	$(BIN)/mypy harbourwatch
 
-test: $(STAMP) browser-deps lint
+test: $(STAMP) browser-deps lint typecheck
 	$(BIN)/python -m pytest -n $(JOBS) -q
 
 bench: $(STAMP)

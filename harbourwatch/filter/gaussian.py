@@ -123,7 +123,7 @@ def _safe_cholesky(P: Array) -> Array:
     """Lower Cholesky factor of a symmetric PSD matrix, clipping tiny negative eigenvalues."""
     P = symmetrise(P)
     try:
-        return np.linalg.cholesky(P)
+        return np.asarray(np.linalg.cholesky(P), dtype=np.float64)
     except np.linalg.LinAlgError:
         w, V = np.linalg.eigh(P)
         w = np.clip(w, 0.0, None)
