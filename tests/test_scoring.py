@@ -20,7 +20,7 @@ from pyproj import Geod
 
 from harbourwatch.cli import main
 from harbourwatch.errors import InputError
-from harbourwatch.scoring import score_files, write_score_plot
+from harbourwatch.scoring import mean_gospa_files, score_files, write_score_plot
 
 GEOD = Geod(ellps="WGS84")
 KN = 1852.0 / 3600.0   # international knot in m/s (1 nmi = 1852 m exactly, by definition)
@@ -209,6 +209,13 @@ def test_gap_longer_than_max_gap_is_absent(tmp_path: Path) -> None:
     # only the last step (200 s) has a missed vessel: c^2/2 = 20000 there, zero elsewhere
     assert r.tgospa.missed == pytest.approx(20000.0)
     assert np.flatnonzero(r.tgospa.missed_t).tolist() == [20]
+
+
+def test_mean_gospa_alone_equals_the_full_score(pilot) -> None:
+    # computed by hand as above: 50 m at every step
+    tracks, truth, _ = pilot
+    assert mean_gospa_files(tracks, truth) == pytest.approx(50.0, abs=0.05)
+    assert mean_gospa_files(tracks, truth) == score_files(tracks, truth).as_dict()["gospa_mean"]
 
 
 def test_identical_files_score_zero(pilot) -> None:
