@@ -40,14 +40,15 @@ def logsumexp(x: Array) -> float:
 class ScanContext:
     """Per-scan quantities the group update reads (all indexed by slot / pair / plot)."""
 
-    p_detect: Array  # (n_slots,) p_D at the predicted mean, 0 outside the cover
-    ln_miss: Array  # (n_slots,) ln w_miss
+    p_detect: list[float]  # (n_slots,) p_D at the predicted mean, 0 outside the cover
+    ln_miss: list[float]  # (n_slots,) ln w_miss
     det_pairs: dict[int, list[tuple[int, int]]]  # slot -> [(plot, pair)]
-    ln_det: Array  # (n_pairs,) ln w_det
+    ln_det: list[float]  # (n_pairs,) ln w_det
     ln_new: Array  # (m,) ln(e_j + λ_c)
     miss_child: Callable[[LocalHyp], LocalHyp]
     det_child: Callable[[int, int], LocalHyp]  # (pair, plot) -> new hypothesis
     born: Callable[[int], Bernoulli]  # plot -> new Bernoulli with one local hypothesis
+    ln_new_list: list[float]  # ln_new as plain floats
 
 
 def merge_clusters(
@@ -211,7 +212,7 @@ def update_single(
         if h >= 0:
             s = b.lhs[h].slot
             if s >= 0 and p_detect[s] > 0.0:
-                miss = float(ln_miss[s])
+                miss = ln_miss[s]
                 if mg:
                     for jj, p in det_pairs.get(s, ()):
                         if jj == j:
@@ -223,7 +224,7 @@ def update_single(
             children = [(cost_new, 1)]
         else:
             k = max(1, math.ceil(max_hyp * math.exp(w)))
-            children = sorted([(cost_new, 1), (miss - float(ln_det[pair]), 0)])[:k]
+            children = sorted([(cost_new, 1), (miss - ln_det[pair], 0)])[:k]
         for cost, col in children:
             if h < 0:
                 idx = -1
@@ -246,7 +247,7 @@ def update_single(
 
 def _lse(w: list[float]) -> float:
     m = max(w)
-    return m + math.log(math.fsum(math.exp(x - m) for x in w))
+    return m + math.log(math.fsum([math.exp(x - m) for x in w]))
 
 
 def _merge_rows(rows: list[list[int]], logw: list[float]) -> tuple[list[list[int]], list[float]]:
@@ -290,6 +291,12 @@ def prune(
     """
     # low-existence local hypotheses become "absent" (methods note §1.9)
     for i, b in enumerate(berns):
+        if len(b.lhs) == 1:
+            if b.lhs[0].r < existence_prune:
+                for row in rows:
+                    if row[i] == 0:
+                        row[i] = -1
+            continue
         low = {k for k, lh in enumerate(b.lhs) if lh.r < existence_prune}
         if low:
             for row in rows:
@@ -333,7 +340,9 @@ def prune(
     shared_cols: list[int] = []
     for i, b in enumerate(berns):
         col = [row[i] for row in rows]
-        used = sorted({h for h in col if h >= 0})
+        used = sorted(set(col))
+        if used[0] < 0:  # -1 (absent) is the only negative entry
+            del used[0]
         if not used:
             continue  # absent everywhere: the Bernoulli is gone
         if len(used) != len(b.lhs):
@@ -343,13 +352,16 @@ def prune(
                 if row[i] >= 0:
                     row[i] = remap[row[i]]
             col = [row[i] for row in rows]
-        if all(h == col[0] for h in col):  # independent of the rest: its own cluster
+        if col.count(col[0]) == len(col):  # independent of the rest: its own cluster
             b.lhs = [b.lhs[col[0]]]
             out.append(Cluster([b], LONE_TABLE, LONE_LOGW))
         else:
             shared_cols.append(i)
     if shared_cols:
-        sub, lw = _merge_rows([[row[i] for i in shared_cols] for row in rows], logw)
+        if len(shared_cols) == len(berns):  # rows are already distinct (merged above)
+            sub, lw = rows, logw
+        else:
+            sub, lw = _merge_rows([[row[i] for i in shared_cols] for row in rows], logw)
         total = _lse(lw)
         out.append(
             Cluster(
@@ -359,16 +371,6 @@ def prune(
             )
         )
     return out
-
-
-def _ancestor(parent: IntArray, node: int, n: int) -> int:
-    """The node ``n`` steps up the chain, ``-2`` if the chain is shorter."""
-    item = parent.item
-    for _ in range(n):
-        node = item(node)
-        if node < 0:
-            return -2
-    return node
 
 
 def _n_scan(
@@ -382,21 +384,36 @@ def _n_scan(
 
     Drop the global hypotheses that disagree with the best one about a
     decision more than ``n_back`` nodes back: a different ancestor ``n_back``
-    nodes up the chain of some Bernoulli, or that Bernoulli present in one and
-    absent in the other while its chain is longer than ``n_back`` nodes.
+    nodes up the chain of some Bernoulli (``-2`` if the chain is shorter), or
+    that Bernoulli present in one and absent in the other while its chain is
+    longer than ``n_back`` nodes.
     """
     best = max(range(len(logw)), key=logw.__getitem__)
     ok = [True] * len(rows)
+    item = parent.item
+    best_row = rows[best]
     for i, b in enumerate(berns):
-        hb = rows[best][i]
+        hb = best_row[i]
+        col = [row[i] for row in rows]
+        if col.count(hb) == len(col):  # every global hypothesis agrees with the best
+            continue
+        lhs = b.lhs
         anc = {-1: -2}
-        for row in rows:
-            h = row[i]
+        via: dict[int, int] = {}  # parent node -> its ancestor n_back - 1 up (siblings share it)
+        for h in col:
             if h not in anc:
-                anc[h] = _ancestor(parent, b.lhs[h].node, n_back)
+                node = item(lhs[h].node)
+                if node >= 0 and node not in via:
+                    up = node
+                    for _ in range(n_back - 1):
+                        up = item(up)
+                        if up < 0:
+                            up = -2
+                            break
+                    via[node] = up
+                anc[h] = via[node] if node >= 0 else -2
         ref = anc[hb]
-        for g, row in enumerate(rows):
-            h = row[i]
+        for g, h in enumerate(col):
             if h == hb or not ok[g]:
                 continue
             a = anc[h]
@@ -405,5 +422,7 @@ def _n_scan(
                     ok[g] = False
             elif a != -2 or ref != -2:  # present in one, absent in the other, and old
                 ok[g] = False
+    if all(ok):
+        return rows, logw
     keep = [g for g in range(len(rows)) if ok[g]]
     return [rows[g] for g in keep], [logw[g] for g in keep]

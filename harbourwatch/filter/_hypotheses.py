@@ -27,6 +27,7 @@ __all__ = [
     "Cluster",
     "beta_predict",
     "miss_update",
+    "step_and_miss",
     "detection_log_weight",
     "new_trajectory_weight",
     "ALIVE_FLOOR",
@@ -59,6 +60,23 @@ def miss_update(
     r_new = r * norm / w_miss
     alive_new = alive * (1.0 - p_detect) / norm
     return r_new, alive_new, tuple(p / norm for p in end_p), w_miss
+
+
+def step_and_miss(
+    r: float, alive: float, end_p: tuple[float, ...], p_survive: float, p_detect: float
+) -> tuple[float, float, tuple[float, ...]]:
+    """:func:`beta_predict` then :func:`miss_update` in one call (the filter's hot path).
+
+    Same operations in the same order; returns ``(r', alive', end_p')``.
+    """
+    al = alive * p_survive
+    endp = end_p + ((1.0 - p_survive) * alive,)
+    pd_alive = p_detect * al
+    w_miss = 1.0 - r * pd_alive
+    norm = 1.0 - pd_alive
+    if w_miss <= 0.0 or norm <= 0.0:  # p_D = 1 and surely alive: a miss is impossible
+        return r, al, endp
+    return r * norm / w_miss, al * (1.0 - p_detect) / norm, tuple([p / norm for p in endp])
 
 
 def detection_log_weight(r, alive, p_detect, log_lik):  # type: ignore[no-untyped-def]

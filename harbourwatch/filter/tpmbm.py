@@ -51,6 +51,7 @@ the log.
 
 from __future__ import annotations
 
+import gc
 import math
 import time as _time
 from collections import defaultdict
@@ -76,9 +77,9 @@ from ._hypotheses import (
     Bernoulli,
     Cluster,
     LocalHyp,
-    beta_predict,
     detection_log_weight,
     miss_update,
+    step_and_miss,
 )
 from ._motion import TwoModeMotion
 from ._nodes import NodeStore
@@ -89,6 +90,7 @@ __all__ = ["run_tpmbm"]
 Array = NDArray[np.float64]
 _POS = [0, 2]
 _COMPACT_MIN = 1 << 16  # nodes: below this the store just grows
+_MISS, _DET, _NEW = 0, 1, 2  # kinds of pending nodes
 _CAP_TEXT = {
     "max_global_hypotheses": "global hypotheses of a cluster cut to max_global_hypotheses",
     "max_local_hypotheses": "local hypotheses of a trajectory cut to max_local_hypotheses",
@@ -179,13 +181,16 @@ class _Filter:
 
         # gather the active local hypotheses
         lhs: list[LocalHyp] = []
-        for c in self.clusters:
+        slot_cluster: list[int] = []  # cluster index of each slot
+        for ci, c in enumerate(self.clusters):
             for b in c.berns:
                 for lh in b.lhs:
-                    lh.slot = -1
-                    if not lh.frozen:
+                    if lh.frozen:
+                        lh.slot = -1
+                    else:
                         lh.slot = len(lhs)
                         lhs.append(lh)
+                        slot_cluster.append(ci)
         n = len(lhs)
         node_idx = np.fromiter((lh.node for lh in lhs), np.int64, n)
         t_leaf = self.nodes.t[node_idx]
@@ -229,7 +234,8 @@ class _Filter:
         self._pair_plot = jj
         ln_det = detection_log_weight(r[ii], alive_pred[ii], pd[ii], ll)
         det_pairs: dict[int, list[tuple[int, int]]] = defaultdict(list)
-        for p, (i, j) in enumerate(zip(ii.tolist(), jj.tolist(), strict=True)):
+        ii_l, jj_l = ii.tolist(), jj.tolist()
+        for p, (i, j) in enumerate(zip(ii_l, jj_l, strict=True)):
             det_pairs[i].append((j, p))
 
         # new trajectories from the undetected density
@@ -245,27 +251,29 @@ class _Filter:
 
         # pending nodes, materialised in one batch at the end of the scan
         t0 = _time.perf_counter()
-        pend: list[tuple[str, int, int]] = []
+        pend: list[int] = []  # flat (kind, source, parent node) triples, see _flush_nodes
         miss_node: dict[int, int] = {}
         det_node: dict[int, int] = {}
         base = self.nodes.n
         var_v = st.birth_speed_sd_m_s**2
 
+        # plain Python floats: the per-hypothesis code below reads single entries
+        pd_l, ps_l, hard_l = pd.tolist(), ps.tolist(), hard.tolist()
+
         def miss_child(old: LocalHyp) -> LocalHyp:
             s = old.slot
-            if s < 0 or pd[s] <= 0.0:
+            if s < 0 or pd_l[s] <= 0.0:
                 return old
-            if not hard[s]:  # just outside the cover: reweight, no new state
-                r2, al2, endp2, _ = miss_update(old.r, old.alive, old.end_p, float(pd[s]))
+            if not hard_l[s]:  # just outside the cover: reweight, no new state
+                r2, al2, endp2, _ = miss_update(old.r, old.alive, old.end_p, pd_l[s])
                 child = LocalHyp(old.node, r2, al2, old.end_nodes, endp2)
                 if al2 < ALIVE_FLOOR:
                     child.freeze()
                 return child
             if s not in miss_node:
-                miss_node[s] = base + len(pend)
-                pend.append(("miss", s, old.node))
-            al, endp = beta_predict(old.alive, old.end_p, float(ps[s]))
-            r2, al2, endp2, _ = miss_update(old.r, al, endp, float(pd[s]))
+                miss_node[s] = base + len(pend) // 3
+                pend.extend((_MISS, s, old.node))
+            r2, al2, endp2 = step_and_miss(old.r, old.alive, old.end_p, ps_l[s], pd_l[s])
             child = LocalHyp(miss_node[s], r2, al2, old.end_nodes + (old.node,), endp2)
             if al2 < ALIVE_FLOOR:
                 child.freeze()
@@ -273,24 +281,22 @@ class _Filter:
 
         def det_child(pair: int, j: int) -> LocalHyp:
             if pair not in det_node:
-                det_node[pair] = base + len(pend)
-                pend.append(("det", pair, lhs[int(ii[pair])].node))
+                det_node[pair] = base + len(pend) // 3
+                pend.extend((_DET, pair, lhs[ii_l[pair]].node))
             return LocalHyp(det_node[pair], 1.0)
 
         def born(j: int) -> Bernoulli:
             bid = self._new_bid()
-            pend.append(("new", j, -1))
-            return Bernoulli(bid, [LocalHyp(base + len(pend) - 1, float(r_new[j]))])
+            pend.extend((_NEW, j, -1))
+            return Bernoulli(bid, [LocalHyp(base + len(pend) // 3 - 1, r_new_l[j])])
 
-        ctx = ScanContext(pd, ln_miss, det_pairs, ln_det, ln_new, miss_child, det_child, born)
+        ctx = ScanContext(
+            pd_l, ln_miss.tolist(), det_pairs, ln_det.tolist(), ln_new, miss_child, det_child, born,
+            ln_new.tolist(),
+        )
+        r_new_l = r_new.tolist()
 
         # groups: connected components of plots and the clusters they gate with
-        cl_of_slot = np.empty(n, np.int64)
-        for ci, c in enumerate(self.clusters):
-            for b in c.berns:
-                for lh in b.lhs:
-                    if lh.slot >= 0:
-                        cl_of_slot[lh.slot] = ci
         parent = list(range(m + len(self.clusters)))
 
         def find(a: int) -> int:
@@ -299,8 +305,8 @@ class _Filter:
                 a = parent[a]
             return a
 
-        for i, j in zip(ii.tolist(), jj.tolist(), strict=True):
-            ra, rb = find(j), find(m + int(cl_of_slot[i]))
+        for i, j in zip(ii_l, jj_l, strict=True):
+            ra, rb = find(j), find(m + slot_cluster[i])
             if ra != rb:
                 parent[ra] = rb
         groups: dict[int, tuple[list[int], list[int]]] = {}
@@ -312,7 +318,7 @@ class _Filter:
                 groups[root][1].append(ci)
         touched = {ci for _, cis in groups.values() for ci in cis}
         slots_in_cover = np.flatnonzero(pd > 0)
-        miss_only = sorted({int(cl_of_slot[s]) for s in slots_in_cover} - touched)
+        miss_only = sorted({slot_cluster[s] for s in slots_in_cover.tolist()} - touched)
         new_clusters: list[Cluster] = []
         busy = touched | set(miss_only)
         keep_clusters = [c for ci, c in enumerate(self.clusters) if ci not in busy]
@@ -321,7 +327,7 @@ class _Filter:
         )
         updated = []
         for plots, cis in work:
-            if self._fast_path(plots, cis, ctx, r_new, new_clusters):
+            if self._fast_path(plots, cis, ctx, r_new_l, new_clusters):
                 continue
             cls = [self.clusters[ci] for ci in cis]
             if len(cls) == 1 and len(cls[0].berns) == 1 and len(plots) <= 1:
@@ -371,8 +377,7 @@ class _Filter:
         plot; and one Bernoulli with one hypothesis and one plot when one of
         the two children is below the weight threshold.
         """
-        st = self.settings
-        thr = st.existence_prune
+        thr = self.settings.existence_prune
         if not cis:
             if len(plots) != 1:
                 return False
@@ -380,29 +385,33 @@ class _Filter:
             if r_new[j] >= thr:
                 out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
             return True
-        if len(cis) != 1:
+        if len(cis) != 1 or len(plots) > 1:
             return False
         c = self.clusters[cis[0]]
-        if c.logw.size != 1 or len(c.berns) != 1 or len(plots) > 1:
+        if c.logw.size != 1 or len(c.berns) != 1:
             return False
         b = c.berns[0]
-        lh = b.lhs[int(c.table[0, 0])]
+        lh = b.lhs[c.table.item(0)]
         if not plots:
             child = ctx.miss_child(lh)
             if child.r >= thr:
                 out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
             return True
         j = plots[0]
-        s = lh.slot
-        pairs = [p for jj, p in ctx.det_pairs.get(s, ()) if jj == j]
-        if not pairs:
+        pair = -1
+        for jj, p in ctx.det_pairs.get(lh.slot, ()):
+            if jj == j:
+                pair = p
+                break
+        if pair < 0:
             return False
-        d = ctx.ln_miss[s] + ctx.ln_new[j] - ctx.ln_det[pairs[0]]
-        if d < -st.log_weight_prune:
-            child = ctx.det_child(pairs[0], j)
+        d = ctx.ln_miss[lh.slot] + ctx.ln_new_list[j] - ctx.ln_det[pair]
+        lwp = self.settings.log_weight_prune
+        if d < -lwp:
+            child = ctx.det_child(pair, j)
             out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
             return True
-        if d > st.log_weight_prune:
+        if d > lwp:
             child = ctx.miss_child(lh)
             if child.r >= thr:
                 out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
@@ -414,15 +423,13 @@ class _Filter:
     def _flush_nodes(self, pend, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, var_v):  # type: ignore[no-untyped-def]
         if not pend:
             return
-        kinds = np.array([p[0][0] for p in pend])
-        src = np.array([p[1] for p in pend], np.int64)
-        par = np.array([p[2] for p in pend], np.int64)
-        k = len(pend)
+        kinds, src, par = np.array(pend, np.int64).reshape(-1, 3).T
+        k = kinds.size
         t = np.empty(k)
         plot = np.full(k, -1, np.int64)
         M = np.empty((k, 4))
         P = np.zeros((k, 4, 4))
-        mi, di, ni = kinds == "m", kinds == "d", kinds == "n"
+        mi, di, ni = kinds == _MISS, kinds == _DET, kinds == _NEW
         t[mi], M[mi], P[mi] = tmiss[src[mi]], pm[src[mi]], pP[src[mi]]
         t[di], M[di], P[di] = stamp[src[di]], m_upd[src[di]], P_upd[src[di]]
         pair_plot = self._pair_plot
@@ -453,19 +460,24 @@ class _Filter:
         """
         thr = self.settings.existence_threshold
         oldest = tk - self.settings.as_seen_window_s
-        t_node = self.nodes.t
+        t_node = self.nodes.t.item
         bids: list[int] = []
         leaves: list[int] = []
         rs: list[float] = []
         for c in self.clusters:
-            row = c.table[0] if c.logw.size == 1 else c.table[int(np.argmax(c.logw))]
-            for b, h in zip(c.berns, row.tolist(), strict=True):
+            berns = c.berns
+            if c.logw.size == 1:
+                row = [c.table.item(0)] if len(berns) == 1 else c.table[0].tolist()
+            else:
+                lw = c.logw.tolist()
+                row = c.table[lw.index(max(lw))].tolist()  # the first best, as np.argmax
+            for b, h in zip(berns, row, strict=True):
                 if h < 0:
                     continue
                 lh = b.lhs[h]
                 if lh.frozen or lh.r <= thr or (lh.end_p and max(lh.end_p) > lh.alive):
                     continue
-                if t_node[lh.node] < oldest:
+                if t_node(lh.node) < oldest:
                     continue
                 bids.append(b.bid)
                 leaves.append(lh.node)
@@ -519,10 +531,18 @@ def run_tpmbm(
     order = sorted(range(len(scans)), key=lambda i: (float(scans[i].time), scans[i].sensor, i))
     total = len(order)
     step = max(1, total // 100)
-    for k, i in enumerate(order):
-        filt.process(scans[i], k)
-        if progress is not None and ((k + 1) % step == 0 or k + 1 == total):
-            progress(k + 1, total)
+    # the filter makes millions of small objects but no reference cycles: the cyclic
+    # garbage collector would only rescan the growing hypothesis store again and again
+    gc_was_enabled = gc.isenabled()
+    gc.disable()
+    try:
+        for k, i in enumerate(order):
+            filt.process(scans[i], k)
+            if progress is not None and ((k + 1) % step == 0 or k + 1 == total):
+                progress(k + 1, total)
+    finally:
+        if gc_was_enabled:
+            gc.enable()
     t0 = _time.perf_counter()
     out = build_output(filt)
     filt.timers["estimate"] += _time.perf_counter() - t0
