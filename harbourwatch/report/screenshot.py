@@ -77,12 +77,25 @@ def _shoot(sync_playwright, pages: list[Path], shots: Path) -> list[Path]:  # ty
             for src in pages:
                 page.goto(src.resolve().as_uri(), wait_until="load")
                 page.wait_for_selector(".folium-map .leaflet-overlay-pane svg", state="attached")
+                _wait_for_map_to_settle(page)
                 dest = shots / (src.stem + ".png")
                 page.screenshot(path=str(dest), full_page=True)
                 written.append(dest)
         finally:
             browser.close()
     return written
+
+
+def _wait_for_map_to_settle(page) -> None:  # type: ignore[no-untyped-def]
+    """Let a zoom or pan animation started while the page loaded (fitting the map to
+    the incident) finish, so the screenshot shows the final view."""
+    two_frames = (
+        "() => new Promise(done => requestAnimationFrame(() => requestAnimationFrame(done)))"
+    )
+    page.evaluate(two_frames)
+    page.wait_for_function(
+        "() => !document.querySelector('.leaflet-zoom-anim, .leaflet-pan-anim')", timeout=5000
+    )
 
 
 def page_load_seconds(page_path: Path) -> float | None:
