@@ -88,15 +88,25 @@ class LocalFrame:
         lon, lat = self._inv.transform(np.asarray(east_m, float), np.asarray(north_m, float))
         return np.asarray(lat, float), np.asarray(lon, float)
 
-    def grid_convergence_rad(self, east_m: ArrayLike, north_m: ArrayLike) -> NDArray[np.float64]:
+    def grid_convergence_rad(
+        self,
+        east_m: ArrayLike,
+        north_m: ArrayLike,
+        latlon: tuple[ArrayLike, ArrayLike] | None = None,
+    ) -> NDArray[np.float64]:
         """Angle from local grid north to true north at the given points (radians).
 
         Add it to a grid course to get a true course. Computed from the
         projection numerically (the inverse of a short northward step).
+        ``latlon`` may pass the points' WGS84 ``(lat, lon)`` when the caller
+        already has them (saves one inverse projection).
         """
         e = np.asarray(east_m, float)
         n = np.asarray(north_m, float)
-        lat, lon = self.to_wgs84(e, n)
+        if latlon is None:
+            lat, lon = self.to_wgs84(e, n)
+        else:
+            lat, lon = np.asarray(latlon[0], float), np.asarray(latlon[1], float)
         step = 1.0
         e2, n2 = self.to_local(lat + step / 111_000.0, lon)
         return np.arctan2(e2 - e, n2 - n) * -1.0

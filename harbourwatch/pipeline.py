@@ -11,6 +11,7 @@ import platform
 import sys
 import time
 from collections.abc import Callable, Sequence
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import asdict, dataclass, field
 from os import PathLike
 from pathlib import Path
@@ -22,8 +23,9 @@ from . import __version__
 from ._io import atomic_write_text, sha256_file
 from .config import FilterSettings, SensorConfig
 from .feeds import PlotTable, Scan
-from .filter import BirthRegion, MeasurementScan, SensorModel, run_filter
+from .filter import BirthRegion, FilterOutput, MeasurementScan, SensorModel, run_filter
 from .geodesy import LocalFrame
+from .inputs import RunInputs
 from .models import converted_covariance
 from .rules import Alert
 from .timefmt import format_utc_one
@@ -171,6 +173,77 @@ def _versions() -> dict[str, str]:
     }
 
 
+def _provenance(
+    inp: RunInputs,
+    feeds: Sequence[PathArg],
+    *,
+    sensors: PathArg,
+    zones: PathArg,
+    rules: PathArg,
+    settings: FilterSettings,
+    seed: int,
+    tile_url: str | None,
+    frame: LocalFrame,
+    tset: TrajectorySet,
+    alerts: Sequence[Alert],
+    fout: FilterOutput,
+    timings: dict[str, float],
+) -> dict[str, Any]:
+    """run.json's content: software, inputs with checksums, parameters, results, timings."""
+    plots_used = int(sum(int(np.count_nonzero(tr.plot_ids >= 0)) for tr in tset))
+    return {
+        "software": _versions(),
+        "caution": CAUTION,
+        "inputs": {
+            "feeds": [{"path": str(p), "sha256": sha256_file(p)} for p in feeds],
+            "sensors": {"path": str(sensors), "sha256": sha256_file(sensors)},
+            "zones": {"path": str(zones), "sha256": sha256_file(zones)},
+            "rules": {"path": str(rules), "sha256": sha256_file(rules)},
+        },
+        "parameters": {
+            "filter": asdict(settings),
+            "seed": seed,
+            "tile_url": tile_url,
+            "sensors": [asdict(s) for s in inp.sensors],
+            "rules": [
+                {"id": r.id, "kind": r.kind, "zone": r.zone, "min_probability": r.min_probability,
+                 **dict(r.params)}
+                for r in inp.rules
+            ],
+            "frame": {"projection": "azimuthal equidistant (WGS84)",
+                      "lat0_deg": frame.lat0_deg, "lon0_deg": frame.lon0_deg},
+        },
+        "feed": {
+            "start": format_utc_one(tset.feed_start) if len(inp.plots) else None,
+            "end": format_utc_one(tset.feed_end) if len(inp.plots) else None,
+            "plots": len(inp.plots),
+            "duplicates_dropped": inp.plots.duplicates_dropped,
+            "scans": len(inp.scans),
+        },
+        "results": {
+            "trajectories": len(tset),
+            "present_at_end": sum(1 for tr in tset if tr.alive_at_end),
+            "alerts": len(alerts),
+            "plots_in_trajectories": plots_used,
+        },
+        "filter_stats": _jsonable(fout.stats),
+        "filter_log": list(fout.log),
+        "timings": timings,
+    }
+
+
+def _write_trajectory_tables(out_dir: Path, tset: TrajectorySet) -> float:
+    """Write tracks.csv, as_seen.csv and trajectories.geojson; return the seconds taken."""
+    t = time.perf_counter()
+    atomic_write_text(out_dir / "tracks.csv", tracks_csv_text(tset))
+    atomic_write_text(out_dir / "as_seen.csv", as_seen_csv_text(tset))
+    atomic_write_text(
+        out_dir / "trajectories.geojson",
+        json.dumps(trajectories_geojson(tset), separators=(",", ":")) + "\n",
+    )
+    return time.perf_counter() - t
+
+
 def run_review(
     feeds: Sequence[PathArg],
     *,
@@ -238,73 +311,36 @@ def run_review(
         feed_start=feed_start, feed_end=feed_end,
     )
 
-    t = time.perf_counter()
-    alerts = evaluate_rules(tset, inp.zones, inp.rules, seed=seed)
-    timings["rules_s"] = time.perf_counter() - t
-
     out_dir = Path(out)
     out_dir.mkdir(parents=True, exist_ok=True)
-    t = time.perf_counter()
-    atomic_write_text(out_dir / "tracks.csv", tracks_csv_text(tset))
-    atomic_write_text(out_dir / "as_seen.csv", as_seen_csv_text(tset))
-    atomic_write_text(
-        out_dir / "trajectories.geojson",
-        json.dumps(trajectories_geojson(tset), separators=(",", ":")) + "\n",
-    )
-    write_alerts_csv(alerts, out_dir / "alerts.csv")
-    timings["write_tables_s"] = time.perf_counter() - t
+    # the trajectory tables are written on a second thread while the rules and the
+    # reports are worked out: much of their time is spent in pyproj, numpy and
+    # pyarrow, which release the interpreter lock
+    pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="harbourwatch-tables")
+    tables = pool.submit(_write_trajectory_tables, out_dir, tset)
+    try:
+        t = time.perf_counter()
+        alerts = evaluate_rules(tset, inp.zones, inp.rules, seed=seed)
+        timings["rules_s"] = time.perf_counter() - t
+        write_alerts_csv(alerts, out_dir / "alerts.csv")
+        provenance = _provenance(
+            inp, feeds, sensors=sensors, zones=zones, rules=rules, settings=settings, seed=seed,
+            tile_url=tile_url, frame=frame, tset=tset, alerts=alerts, fout=fout, timings=timings,
+        )
+        t = time.perf_counter()
+        write_reports(
+            out_dir,
+            ReportInputs(
+                trajectories=tset, plots=inp.plots, scans=inp.scans, sensors=inp.sensors,
+                zones=inp.zones, rules=inp.rules, alerts=alerts, provenance=provenance,
+                tile_url=tile_url,
+            ),
+        )
+        timings["reports_s"] = time.perf_counter() - t
+    finally:
+        pool.shutdown(wait=True)
+    timings["write_tables_s"] = tables.result()
 
-    plots_used = int(sum(int(np.count_nonzero(tr.plot_ids >= 0)) for tr in tset))
-    provenance: dict[str, Any] = {
-        "software": _versions(),
-        "caution": CAUTION,
-        "inputs": {
-            "feeds": [{"path": str(p), "sha256": sha256_file(p)} for p in feeds],
-            "sensors": {"path": str(sensors), "sha256": sha256_file(sensors)},
-            "zones": {"path": str(zones), "sha256": sha256_file(zones)},
-            "rules": {"path": str(rules), "sha256": sha256_file(rules)},
-        },
-        "parameters": {
-            "filter": asdict(settings),
-            "seed": seed,
-            "tile_url": tile_url,
-            "sensors": [asdict(s) for s in inp.sensors],
-            "rules": [
-                {"id": r.id, "kind": r.kind, "zone": r.zone, "min_probability": r.min_probability,
-                 **dict(r.params)}
-                for r in inp.rules
-            ],
-            "frame": {"projection": "azimuthal equidistant (WGS84)",
-                      "lat0_deg": frame.lat0_deg, "lon0_deg": frame.lon0_deg},
-        },
-        "feed": {
-            "start": format_utc_one(feed_start) if len(inp.plots) else None,
-            "end": format_utc_one(feed_end) if len(inp.plots) else None,
-            "plots": len(inp.plots),
-            "duplicates_dropped": inp.plots.duplicates_dropped,
-            "scans": len(inp.scans),
-        },
-        "results": {
-            "trajectories": len(tset),
-            "present_at_end": sum(1 for tr in tset if tr.alive_at_end),
-            "alerts": len(alerts),
-            "plots_in_trajectories": plots_used,
-        },
-        "filter_stats": _jsonable(fout.stats),
-        "filter_log": list(fout.log),
-        "timings": timings,
-    }
-
-    t = time.perf_counter()
-    write_reports(
-        out_dir,
-        ReportInputs(
-            trajectories=tset, plots=inp.plots, scans=inp.scans, sensors=inp.sensors,
-            zones=inp.zones, rules=inp.rules, alerts=alerts, provenance=provenance,
-            tile_url=tile_url,
-        ),
-    )
-    timings["reports_s"] = time.perf_counter() - t
     timings["total_s"] = time.perf_counter() - t0
     atomic_write_text(out_dir / "run.json", json.dumps(provenance, indent=2, sort_keys=True) + "\n")
 
@@ -325,7 +361,7 @@ def run_review(
         still_present=present,
         departed=len(tset) - present,
         plots_total=len(inp.plots),
-        plots_used=plots_used,
+        plots_used=provenance["results"]["plots_in_trajectories"],
         scans=len(inp.scans),
         seconds=timings["total_s"],
         feed_seconds=feed_end - feed_start,

@@ -19,9 +19,14 @@ def format_utc(t: ArrayLike) -> NDArray[np.str_]:
     >>> format_utc([0.0, 1777874401.25]).tolist()
     ['1970-01-01T00:00:00.000Z', '2026-05-04T06:00:01.250Z']
     """
-    ms = np.round(np.asarray(t, dtype=np.float64) * 1000.0).astype("int64")
+    return np.array(format_utc_list(t), dtype=str)
+
+
+def format_utc_list(t: ArrayLike) -> list[str]:
+    """:func:`format_utc` as a plain list (the fast form for writing big tables)."""
+    ms = np.round(np.asarray(t, dtype=np.float64).reshape(-1) * 1000.0).astype("int64")
     s = np.datetime_as_string(ms.astype("datetime64[ms]"), unit="ms")
-    return np.char.add(s.astype(str), "Z")
+    return [x + "Z" for x in s.tolist()]
 
 
 def format_utc_one(t: float) -> str:

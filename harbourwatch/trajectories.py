@@ -10,6 +10,7 @@ they could be known at each moment (:class:`AsSeenTable`).
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -179,12 +180,13 @@ def _sog_cog(frame: LocalFrame, mean: Array) -> tuple[Array, Array, Array, Array
     lat, lon = frame.to_wgs84(mean[:, 0], mean[:, 2])
     sog = np.hypot(mean[:, 1], mean[:, 3]) / _KNOT
     grid_course = np.arctan2(mean[:, 1], mean[:, 3])
-    cog = np.degrees(grid_course + frame.grid_convergence_rad(mean[:, 0], mean[:, 2])) % 360.0
+    conv = frame.grid_convergence_rad(mean[:, 0], mean[:, 2], latlon=(lat, lon))
+    cog = np.degrees(grid_course + conv) % 360.0
     cog = np.where(np.round(cog, 1) >= 360.0, 0.0, cog)
     return lat, lon, sog, cog
 
 
-def _csv_text(header: tuple[str, ...], columns: list[NDArray], decimals: list[int | None]) -> str:  # type: ignore[type-arg]
+def _csv_text(header: tuple[str, ...], columns: list[Any], decimals: list[int | None]) -> str:  # type: ignore[type-arg]
     """CSV text of numeric and string columns, numbers rounded to ``decimals``.
 
     Written by pyarrow's CSV writer (fast on a million rows): each number is
@@ -196,8 +198,9 @@ def _csv_text(header: tuple[str, ...], columns: list[NDArray], decimals: list[in
 
     arrays = []
     for col, d in zip(columns, decimals, strict=True):
-        if d is None:
-            arrays.append(pa.array(np.asarray(col).astype(str)))
+        if d is None:  # text: from a plain list (much faster than from numpy strings)
+            text = col if isinstance(col, list) else np.asarray(col).astype(str).tolist()
+            arrays.append(pa.array(text, pa.string()))
         else:
             arrays.append(pa.array(np.round(np.asarray(col, dtype=float), d) + 0.0))  # no -0
     table = pa.table(arrays, names=list(header))
@@ -213,7 +216,7 @@ def tracks_csv_text(tset: TrajectorySet) -> str:
 
     Track ids are plain ``T<n>`` strings, so no CSV quoting is ever needed.
     """
-    from .timefmt import format_utc
+    from .timefmt import format_utc_list
 
     ts = tset.trajectories
     if not ts:
@@ -222,7 +225,7 @@ def tracks_csv_text(tset: TrajectorySet) -> str:
     lat, lon, sog, cog = _sog_cog(tset.frame, mean)
     columns = [
         np.concatenate([np.full(t.time.size, t.id) for t in ts]),
-        format_utc(np.concatenate([t.time for t in ts])),
+        format_utc_list(np.concatenate([t.time for t in ts])),
         lat,
         lon,
         sog,
@@ -235,13 +238,13 @@ def tracks_csv_text(tset: TrajectorySet) -> str:
 
 def as_seen_csv_text(tset: TrajectorySet) -> str:
     """``as_seen.csv``: the filtered estimate as known after each scan (documented in README)."""
-    from .timefmt import format_utc
+    from .timefmt import format_utc_list
 
     a = tset.as_seen
     if a.time.size == 0:
         return ",".join(AS_SEEN_COLUMNS) + "\n"
     lat, lon, sog, cog = _sog_cog(tset.frame, a.mean)
-    columns = [format_utc(a.time), a.track, lat, lon, sog, cog, a.sd, a.existence]
+    columns = [format_utc_list(a.time), a.track, lat, lon, sog, cog, a.sd, a.existence]
     return _csv_text(AS_SEEN_COLUMNS, columns, [None, None, 7, 7, 2, 1, 1, 4])
 
 
@@ -252,7 +255,9 @@ def trajectories_geojson(tset: TrajectorySet) -> dict:  # type: ignore[type-arg]
     features = []
     for t in tset.trajectories:
         lat, lon = tset.frame.to_wgs84(t.mean[:, 0], t.mean[:, 2])
-        coords = [[round(float(x), 7), round(float(y), 7)] for x, y in zip(lon, lat, strict=True)]
+        # rounded as in tracks.csv (numpy's rounding), 7 decimals of a degree ~ 1 cm
+        lon7, lat7 = np.round(lon, 7) + 0.0, np.round(lat, 7) + 0.0
+        coords = [[x, y] for x, y in zip(lon7.tolist(), lat7.tolist(), strict=True)]
         geom = (
             {"type": "LineString", "coordinates": coords}
             if len(coords) > 1

@@ -15,57 +15,12 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from ..models import cv_transition_batch
 from ..trajectories import AsSeenTable, Trajectory
 from . import FilterOutput
+from ._kernels import rts_smooth_chain
 
 if TYPE_CHECKING:
     from .tpmbm import _Filter
-
-
-def _compose_suffix(G: np.ndarray, c: np.ndarray, D: np.ndarray) -> None:
-    """In place: turn each step map into the composition of it and all later ones.
-
-    Step ``k`` maps the smoothed moments at ``k+1`` to those at ``k``:
-    ``x ↦ G_k x + c_k`` and ``X ↦ G_k X G_kᵀ + D_k``. Composition is
-    associative, so the suffix compositions come from ``log2(T)`` doubling
-    rounds of batched 4x4 products instead of ``T`` small sequential steps.
-    """
-    n = G.shape[0]
-    d = 1
-    while d < n:
-        G2, c2, D2 = G[d:].copy(), c[d:].copy(), D[d:].copy()
-        G1 = G[: n - d]
-        c[: n - d] = c[: n - d] + np.einsum("kij,kj->ki", G1, c2)
-        D[: n - d] = D[: n - d] + G1 @ D2 @ np.swapaxes(G1, 1, 2)
-        G[: n - d] = G1 @ G2
-        d *= 2
-
-
-def rts_smooth_scan(
-    t: np.ndarray, fm: np.ndarray, fP: np.ndarray, pm: np.ndarray, pP: np.ndarray
-) -> tuple[np.ndarray, np.ndarray]:
-    """Rauch-Tung-Striebel smoother (methods note §6.3) by a parallel suffix scan.
-
-    Same equations as :func:`harbourwatch.filter.gaussian.rts_smooth`; the
-    gains are batched solves and the backward pass is evaluated by composing
-    its affine steps, which keeps hours-long chains cheap in numpy.
-    """
-    T = t.size
-    if T == 1:
-        return fm.copy(), fP.copy()
-    F = cv_transition_batch(np.diff(t))  # F_{k+1} for k = 0..T-2
-    # G_k = P_k|k F_{k+1}ᵀ P_{k+1|k}⁻¹, as a solve: G_kᵀ = P_{k+1|k}⁻¹ F_{k+1} P_k|k
-    G = np.swapaxes(np.linalg.solve(pP[1:], F @ fP[:-1]), 1, 2)
-    c = fm[:-1] - np.einsum("kij,kj->ki", G, pm[1:])
-    D = fP[:-1] - G @ pP[1:] @ np.swapaxes(G, 1, 2)
-    _compose_suffix(G, c, D)
-    ms = np.empty_like(fm)
-    Ps = np.empty_like(fP)
-    ms[-1], Ps[-1] = fm[-1], fP[-1]
-    ms[:-1] = c + G @ fm[-1]
-    Ps[:-1] = D + G @ fP[-1] @ np.swapaxes(G, 1, 2)
-    return ms, 0.5 * (Ps + np.swapaxes(Ps, 1, 2))
 
 
 def build_output(filt: _Filter) -> FilterOutput:
@@ -107,7 +62,7 @@ def build_output(filt: _Filter) -> FilterOutput:
         tid = f"T{k + 1}"
         ids[bid] = tid
         t, fm, fP, pm, pP = nodes.moments(idx)
-        ms, Ps = rts_smooth_scan(t, fm, fP, pm, pP)
+        ms, Ps = rts_smooth_chain(t, fm, fP, pm, pP)
         plots = nodes.plot[idx].copy()
         used_plots += int((plots >= 0).sum())
         alive_at_end = bool(is_alive and not lh.frozen and t[-1] >= last_scan - st.as_seen_window_s)

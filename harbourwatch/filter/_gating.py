@@ -9,8 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.special import ndtr
-from scipy.stats import chi2
+from scipy.special import chdtri, ndtr
 
 from . import SensorModel
 
@@ -41,7 +40,7 @@ def chi2_gate(gate_probability: float, dim: int = 2) -> float:
         raise ValueError(f"gate probability must lie in (0, 1), got {gate_probability!r}")
     if int(dim) != dim or dim < 1:
         raise ValueError(f"dimension must be a positive integer, got {dim!r}")
-    return float(chi2.ppf(p, int(dim)))
+    return float(chdtri(int(dim), 1.0 - p))  # the chi-square quantile, lighter than scipy.stats
 
 
 #: Smallest step between two nodes of one chain (keeps chain times increasing).
@@ -91,15 +90,10 @@ def gate_pairs(  # type: ignore[no-untyped-def]
     if a.size == 0:
         return empty
     ii = act[a]
-    stamp = np.maximum(tj[jj], t_leaf[ii] + MIN_STEP_S)
-    dtp = stamp - t_leaf[ii]
-    nis, ll, um, uP, post, m_upd, P_upd = motion.score_and_update(
-        leaf_mm[ii], leaf_mP[ii], leaf_mu[ii], dtp, z[jj], R[jj]
+    ok, ll, stamp, m_upd, P_upd, um, uP, post = motion.gate_update(
+        leaf_mm, leaf_mP, leaf_mu, t_leaf, ii, jj, tj, z, R, gate, MIN_STEP_S
     )
-    ok = nis < gate
-    return (
-        ii[ok], jj[ok], ll[ok], stamp[ok], m_upd[ok], P_upd[ok], um[ok], uP[ok], post[ok]
-    )
+    return ii[ok], jj[ok], ll, stamp, m_upd, P_upd, um, uP, post
 
 
 def cover_detection(pm: Array, pP: Array, sensor: SensorModel) -> Array:

@@ -24,6 +24,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..models import cv_process_noise_batch, cv_transition_batch
+from ._kernels import imm_gate_update, imm_predict
 from .gaussian import kf_predict, log_likelihood, mahalanobis2_batch
 
 __all__ = ["TwoModeMotion", "merge"]
@@ -91,10 +92,51 @@ class TwoModeMotion:
         return pm, pP, c
 
     def predict(self, mm: Array, mP: Array, mu: Array, dt: Array) -> tuple[Array, Array, Array, Array, Array]:
-        """Prediction without a plot: per-mode moments, prior mode probabilities and their merge."""
+        """Prediction without a plot: per-mode moments, prior mode probabilities and their merge.
+
+        Compiled (:func:`._kernels.imm_predict`); :meth:`predict_reference` is the same in numpy.
+        """
+        return imm_predict(  # type: ignore[no-any-return]
+            np.ascontiguousarray(mm), np.ascontiguousarray(mP), np.ascontiguousarray(mu),
+            np.ascontiguousarray(dt, dtype=float), self.q, self.a, self.b, self.pi_hi,
+        )
+
+    def predict_reference(
+        self, mm: Array, mP: Array, mu: Array, dt: Array
+    ) -> tuple[Array, Array, Array, Array, Array]:
+        """:meth:`predict` written with batched numpy (the readable reference of the kernel)."""
         pm, pP, c = self._mix_predict(mm, mP, mu, dt)
         m, P = merge(pm, pP, c)
         return pm, pP, c, m, P
+
+    def gate_update(
+        self,
+        mm: Array,
+        mP: Array,
+        mu: Array,
+        t_leaf: Array,
+        ii: NDArray[np.int64],
+        jj: NDArray[np.int64],
+        tj: Array,
+        z: Array,
+        R: Array,
+        gate: float,
+        min_step: float,
+    ) -> tuple[NDArray[np.int64], Array, Array, Array, Array, Array, Array, Array]:
+        """Gate candidate pairs (leaf ``ii``, plot ``jj``) and update the ones inside the gate.
+
+        Each leaf is predicted to its plot's own time ``max(tj, t_leaf + min_step)``;
+        a pair passes when the smaller of the two modes' NIS is below ``gate``
+        (as :meth:`score_and_update`, which is the numpy reference). Returns,
+        for the passing pairs in candidate order: their candidate positions,
+        the mixture log-likelihood, the node time, the merged mean and
+        covariance, the per-mode means and covariances and the mode probabilities.
+        """
+        cnt, idx, ll, stamp, m, P, um, uP, post = imm_gate_update(
+            mm, mP, mu, t_leaf, np.ascontiguousarray(ii), np.ascontiguousarray(jj), tj, z, R,
+            self.q, self.a, self.b, self.pi_hi, float(gate), float(min_step),
+        )
+        return idx[:cnt], ll[:cnt], stamp[:cnt], m[:cnt], P[:cnt], um[:cnt], uP[:cnt], post[:cnt]
 
     def score_and_update(
         self, mm: Array, mP: Array, mu: Array, dt: Array, z: Array, R: Array
@@ -104,6 +146,7 @@ class TwoModeMotion:
         Returns the gate statistic (the smaller of the two modes' NIS), the
         mixture log-likelihood, the updated per-mode means and covariances,
         the posterior mode probabilities, and their merged mean and covariance.
+        Batched numpy: the reference that :meth:`gate_update` is tested against.
         """
         from ._gating import batch_update
 

@@ -24,6 +24,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..models import cv_process_noise_batch, cv_transition_batch
+from ._kernels import reachable
 from .gaussian import kf_predict
 
 Array = NDArray[np.float64]
@@ -61,36 +62,19 @@ class NodeStore:
             arr[: self.n] = old[: self.n]
             setattr(self, name, arr)
 
-    def add_batch(
-        self,
-        t: Array,
-        parent: IntArray,
-        plot: IntArray,
-        sensor: IntArray | int,
-        m: Array,
-        P: Array,
-        mm: Array,
-        mP: Array,
-        mu: Array,
-        qin: Array,
-    ) -> IntArray:
-        """Append ``len(t)`` nodes; return their indices."""
-        k = int(np.size(t))
+    def reserve_rows(self, k: int) -> int:
+        """Make room for ``k`` more nodes, count them as added and return the first new row.
+
+        The caller fills rows ``start .. start + k - 1`` of every column at once.
+        """
         self._reserve(k)
-        s = slice(self.n, self.n + k)
-        self.t[s] = t
-        self.parent[s] = parent
-        self.plot[s] = plot
-        self.sensor[s] = sensor
-        self.m[s] = m
-        self.P[s] = P
-        self.mm[s] = mm
-        self.mP[s] = mP
-        self.mu[s] = mu
-        self.qin[s] = qin
-        idx = np.arange(self.n, self.n + k, dtype=np.int64)
+        start = self.n
         self.n += k
-        return idx
+        return start
+
+    def columns(self) -> tuple[Array, IntArray, IntArray, IntArray, Array, Array, Array, Array, Array, Array]:
+        """The column arrays, in the order of ``_COLUMNS`` (for compiled writers)."""
+        return (self.t, self.parent, self.plot, self.sensor, self.m, self.P, self.mm, self.mP, self.mu, self.qin)
 
     def chain(self, leaf: int) -> IntArray:
         """Node indices from the root to ``leaf`` (inclusive), in time order."""
@@ -123,15 +107,12 @@ class NodeStore:
         return t, fm, fP, pm, pP
 
     def compact(self, live: IntArray) -> IntArray:
-        """Drop nodes unreachable from ``live``; return the old-to-new index map (-1 = gone)."""
-        keep = np.zeros(self.n, bool)
-        frontier = np.unique(live[live >= 0])
-        parent = self.parent
-        while frontier.size:
-            keep[frontier] = True
-            p = parent[frontier]
-            p = p[p >= 0]
-            frontier = np.unique(p[~keep[p]])
+        """Drop nodes unreachable from ``live``; return the old-to-new index map (-1 = gone).
+
+        Parents always have smaller indices than their children (nodes are
+        appended in time order; compaction keeps the order).
+        """
+        keep = reachable(self.parent, self.n, np.ascontiguousarray(live, dtype=np.int64))
         old = np.flatnonzero(keep)
         remap = np.full(self.n + 1, -1, np.int64)  # last slot maps parent -1 to -1
         remap[old] = np.arange(old.size)

@@ -81,6 +81,7 @@ from ._hypotheses import (
     miss_update,
     step_and_miss,
 )
+from ._kernels import write_nodes
 from ._motion import TwoModeMotion
 from ._nodes import NodeStore
 from ._undetected import UndetectedDensity
@@ -421,35 +422,25 @@ class _Filter:
         return False
 
     def _flush_nodes(self, pend, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, var_v):  # type: ignore[no-untyped-def]
+        """Materialise the scan's pending nodes in one compiled pass (see ``_kernels.write_nodes``).
+
+        A missed detection carries the predicted per-mode moments, a
+        detection the updated ones (see :mod:`._motion`); a new trajectory
+        starts with both modes equal to its initial Gaussian.
+        """
         if not pend:
             return
         kinds, src, par = np.array(pend, np.int64).reshape(-1, 3).T
-        k = kinds.size
-        t = np.empty(k)
-        plot = np.full(k, -1, np.int64)
-        M = np.empty((k, 4))
-        P = np.zeros((k, 4, 4))
-        mi, di, ni = kinds == _MISS, kinds == _DET, kinds == _NEW
-        t[mi], M[mi], P[mi] = tmiss[src[mi]], pm[src[mi]], pP[src[mi]]
-        t[di], M[di], P[di] = stamp[src[di]], m_upd[src[di]], P_upd[src[di]]
-        pair_plot = self._pair_plot
-        plot[di] = scan.plot_ids[pair_plot[src[di]]]
-        j = src[ni]
-        t[ni] = scan.plot_time[j]
-        plot[ni] = scan.plot_ids[j]
-        M[ni] = 0.0
-        M[ni, 0], M[ni, 2] = z[j, 0], z[j, 1]
-        P[np.ix_(ni, _POS, _POS)] = R[j]
-        P[ni, 1, 1] = P[ni, 3, 3] = var_v
-        # motion modes (see ._motion): a missed detection carries the predicted
-        # per-mode moments, a detection the updated ones; a new trajectory starts
-        # with both modes equal to its initial Gaussian
-        mm = np.repeat(M[:, None, :], 2, axis=1)
-        mP = np.repeat(P[:, None, :, :], 2, axis=1)
-        mu = self.motion.initial_mu(k)
-        for sel, (a_m, a_P, a_mu) in ((mi, self._miss_modes), (di, self._pair_modes)):
-            mm[sel], mP[sel], mu[sel] = a_m[src[sel]], a_P[src[sel]], a_mu[src[sel]]
-        self.nodes.add_batch(t, par, plot, scan.sensor, M, P, mm, mP, mu, self.motion.q_eff(mu))
+        nodes = self.nodes
+        start = nodes.reserve_rows(kinds.size)
+        pmm, pmP, mu_pred = self._miss_modes
+        um, uP, mu_upd = self._pair_modes
+        write_nodes(
+            nodes.columns(), start, np.ascontiguousarray(kinds), np.ascontiguousarray(src),
+            np.ascontiguousarray(par), scan.sensor, self.motion.q, self.motion.initial_mu(1)[0],
+            (tmiss, pm, pP, pmm, pmP, mu_pred), (stamp, m_upd, P_upd, um, uP, mu_upd),
+            self._pair_plot, scan.plot_ids, scan.plot_time, z, R, var_v,
+        )
 
     # -- estimates ---------------------------------------------------------------------
     def _record_as_seen(self, tk: float) -> None:

@@ -1,0 +1,133 @@
+"""The compiled kernels (numba) against their readable references.
+
+References: the batched-numpy IMM of ``TwoModeMotion`` (itself checked against
+scipy and the plain Kalman filter in test_motion.py), the step-by-step RTS
+smoother of ``harbourwatch.filter.gaussian`` (checked against the
+Kalman smoother's closed form in test_gaussian.py), and a breadth-first walk of
+parent links for node reachability.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from harbourwatch.filter._kernels import reachable, rts_smooth_chain, write_nodes
+from harbourwatch.filter._motion import TwoModeMotion
+from harbourwatch.filter._nodes import NodeStore
+from harbourwatch.filter.gaussian import kf_predict, rts_smooth
+from harbourwatch.models import cv_process_noise_batch, cv_transition_batch
+
+
+def _state(rng, n):
+    m = rng.normal(0, 50, (n, 2, 4))
+    A = rng.normal(0, 1, (n, 2, 4, 4))
+    P = A @ np.swapaxes(A, -1, -2) + 4 * np.eye(4)
+    mu = rng.dirichlet([2, 2], n)
+    return m, P, mu
+
+
+@settings(max_examples=30, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 12), q_hi=st.sampled_from([0.0002, 0.05, 1.0]))
+def test_compiled_prediction_equals_numpy_reference(seed, n, q_hi):
+    rng = np.random.default_rng(seed)
+    mot = TwoModeMotion(0.0002, q_hi, interval_s=900.0, duration_s=60.0)
+    m, P, mu = _state(rng, n)
+    dt = rng.uniform(1e-3, 120.0, n)
+    got = mot.predict(m, P, mu, dt)
+    ref = mot.predict_reference(m, P, mu, dt)
+    for g, r in zip(got, ref, strict=True):
+        np.testing.assert_allclose(g, r, rtol=1e-11, atol=1e-9)
+
+
+@settings(max_examples=30, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 6), m_plots=st.integers(1, 6))
+def test_compiled_gating_and_update_equal_numpy_reference(seed, n, m_plots):
+    # every (leaf, plot) candidate pair: the compiled kernel must keep exactly the pairs
+    # whose smaller NIS is below the gate, with the reference's numbers for each
+    rng = np.random.default_rng(seed)
+    mot = TwoModeMotion(0.0002, 0.05, interval_s=900.0, duration_s=60.0)
+    m, P, mu = _state(rng, n)
+    t_leaf = rng.uniform(0.0, 5.0, n)
+    tj = rng.uniform(0.0, 10.0, m_plots)
+    z = rng.normal(0, 60, (m_plots, 2))
+    B = rng.normal(0, 3, (m_plots, 2, 2))
+    R = B @ np.swapaxes(B, 1, 2) + 25 * np.eye(2)
+    ii, jj = (a.ravel().astype(np.int64) for a in np.meshgrid(np.arange(n), np.arange(m_plots), indexing="ij"))
+    gate = 13.8  # 0.999 quantile of chi-square with 2 degrees of freedom
+    idx, ll, stamp, mg, Pg, um, uP, post = mot.gate_update(m, P, mu, t_leaf, ii, jj, tj, z, R, gate, 1e-3)
+    stamp_ref = np.maximum(tj[jj], t_leaf[ii] + 1e-3)
+    nis, ll_r, um_r, uP_r, post_r, mg_r, Pg_r = mot.score_and_update(
+        m[ii], P[ii], mu[ii], stamp_ref - t_leaf[ii], z[jj], R[jj]
+    )
+    np.testing.assert_array_equal(idx, np.flatnonzero(nis < gate))
+    for g, r in ((ll, ll_r), (stamp, stamp_ref), (mg, mg_r), (Pg, Pg_r), (um, um_r), (uP, uP_r), (post, post_r)):
+        np.testing.assert_allclose(g, r[idx], rtol=1e-10, atol=1e-8)
+
+
+@settings(max_examples=25, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), T=st.integers(1, 40))
+def test_compiled_rts_equals_stepwise_reference(seed, T):
+    rng = np.random.default_rng(seed)
+    t = np.cumsum(rng.uniform(0.5, 30.0, T))
+    A = rng.normal(0, 1, (T, 4, 4))
+    fP = A @ np.swapaxes(A, 1, 2) + np.eye(4)
+    fm = rng.normal(0, 100, (T, 4))
+    pm, pP = fm.copy(), fP.copy()
+    if T > 1:
+        dt = np.diff(t)
+        pm[1:], pP[1:] = kf_predict(fm[:-1], fP[:-1], cv_transition_batch(dt), cv_process_noise_batch(dt, 0.01))
+    ms, Ps = rts_smooth_chain(t, fm, fP, pm, pP)
+    ms_r, Ps_r = rts_smooth(t, fm, fP, pm, pP)
+    np.testing.assert_allclose(ms, ms_r, rtol=1e-9, atol=1e-7)
+    np.testing.assert_allclose(Ps, Ps_r, rtol=1e-9, atol=1e-7)
+    np.testing.assert_array_equal(Ps, np.swapaxes(Ps, 1, 2))
+
+
+@settings(max_examples=50, deadline=None)
+@given(data=st.data(), n=st.integers(1, 60))
+def test_reachable_equals_breadth_first_walk(data, n):
+    # parents always precede their children, as in the node store
+    parent = np.array([data.draw(st.integers(-1, i - 1)) for i in range(n)], np.int64)
+    live = np.array(data.draw(st.lists(st.integers(-1, n - 1), max_size=8)), np.int64)
+    ref = np.zeros(n, bool)
+    todo = [int(i) for i in live if i >= 0]
+    while todo:
+        i = todo.pop()
+        if not ref[i]:
+            ref[i] = True
+            if parent[i] >= 0:
+                todo.append(int(parent[i]))
+    np.testing.assert_array_equal(reachable(parent, n, live), ref)
+
+
+def test_written_nodes_hold_the_miss_detection_and_new_moments(rng):
+    store = NodeStore(capacity=2)
+    mot = TwoModeMotion(0.0002, 0.05, interval_s=900.0, duration_s=60.0)
+    miss_m, miss_P, miss_mu = _state(rng, 2)
+    miss = (np.array([5.0, 6.0]), miss_m[:, 0], miss_P[:, 0], miss_m, miss_P, miss_mu)
+    det_m, det_P, det_mu = _state(rng, 1)
+    det = (np.array([7.5]), det_m[:, 1], det_P[:, 1], det_m, det_P, det_mu)
+    z = np.array([[100.0, -50.0], [3.0, 4.0]])
+    R = np.array([[[400.0, 30.0], [30.0, 900.0]], np.eye(2)])
+    start = store.reserve_rows(3)  # grows the store past its capacity
+    write_nodes(
+        store.columns(), start, np.array([0, 1, 2]), np.array([1, 0, 0]), np.array([11, 12, -1]),
+        2, mot.q, mot.initial_mu(1)[0], miss, det, np.array([1]), np.array([70, 71]),
+        np.array([8.0, 8.5]), z, R, 25.0,
+    )
+    assert store.n == 3
+    np.testing.assert_array_equal(store.parent[:3], [11, 12, -1])
+    np.testing.assert_array_equal(store.plot[:3], [-1, 71, 70])
+    np.testing.assert_array_equal(store.sensor[:3], [2, 2, 2])
+    np.testing.assert_array_equal(store.t[:3], [6.0, 7.5, 8.0])
+    np.testing.assert_array_equal(store.mP[0], miss_P[1])
+    np.testing.assert_array_equal(store.m[1], det_m[0, 1])
+    new_P = np.zeros((4, 4))
+    new_P[np.ix_([0, 2], [0, 2])] = R[0]
+    new_P[1, 1] = new_P[3, 3] = 25.0
+    np.testing.assert_array_equal(store.P[2], new_P)
+    np.testing.assert_array_equal(store.m[2], [100.0, 0.0, -50.0, 0.0])
+    np.testing.assert_array_equal(store.mm[2], [[100.0, 0.0, -50.0, 0.0]] * 2)
+    np.testing.assert_allclose(store.qin[:3], [miss_mu[1] @ mot.q, det_mu[0] @ mot.q, mot.initial_mu(1)[0] @ mot.q])
