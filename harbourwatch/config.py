@@ -156,7 +156,7 @@ class FilterSettings:
     birth_speed_sd_m_s: float = 5.0
     gate_probability: float = 0.9999
     max_global_hypotheses: int = 20
-    log_weight_prune: float = 9.21  # ln 1e4: the 1e-4 relative weight of the methods note
+    log_weight_prune: float = 6.91  # ln 1e3; the methods note suggests 1e-4: see the README tuning table
     existence_prune: float = 1e-4
     existence_threshold: float = 0.5
     max_local_hypotheses: int = 30

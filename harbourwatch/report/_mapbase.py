@@ -22,6 +22,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import folium
+import numpy as np
 from branca.element import Element, Figure, MacroElement
 from folium.template import Template
 
@@ -33,7 +34,8 @@ __all__ = ["MapParts", "new_map", "render_parts", "SafePopup", "PointLayer", "ro
 
 def round5(values: Any) -> list[list[float]]:
     """``[[lat, lon], ...]`` rounded to 5 decimals (about 1 m), as plain floats."""
-    return [[round(float(a), 5), round(float(b), 5)] for a, b in values]
+    arr = np.asarray(values if isinstance(values, (list, tuple, np.ndarray)) else list(values), float)
+    return (np.round(arr.reshape(-1, 2), 5) + 0.0).tolist()  # type: ignore[no-any-return]
 
 
 def new_map(
