@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import html
 import re
 from html.parser import HTMLParser
 from pathlib import Path
@@ -25,6 +26,8 @@ from harbourwatch.report.incident import narrative
 HOSTILE_ZONE = "<script>alert(1)</script>"
 HOSTILE_RULE = '"&<>'
 TEMPLATE_ZONE = "Calder `${alert(2)}` \\x Range"
+# jinja2 delimiters (folium renders through jinja2): must stay text, never be evaluated
+JINJA_ZONE = "{{ 6*7 }}{% if true %}IF{% endif %}{# hidden #} Fairway"
 
 
 @pytest.fixture(scope="module")
@@ -174,6 +177,7 @@ def hostile(tmp_path_factory: pytest.TempPathFactory) -> dict[Path, str]:
     from dataclasses import replace
 
     zones[2] = replace(zones[2], name=TEMPLATE_ZONE)
+    zones[3] = replace(zones[3], name=JINJA_ZONE)
     inputs = replace(inputs, zones=zones)
     return {p: p.read_text("utf-8") for p in write_reports(out, inputs)}
 
@@ -189,6 +193,19 @@ def test_hostile_names_never_appear_raw(hostile: dict[Path, str]) -> None:
         assert text.count("<script") == text.count("</script>"), path
 
 
+def test_template_delimiters_in_names_are_never_evaluated(hostile: dict[Path, str]) -> None:
+    for path, text in hostile.items():
+        # no template delimiter at all in the written page (names are escaped) ...
+        assert "{{" not in text and "{%" not in text and "{#" not in text, path
+        # ... and nothing was evaluated on the way: 6*7 never became 42 next to the name
+        visible = html.unescape(text)
+        assert "42IF" not in visible and "42 Fairway" not in visible, path
+    overview = next(t for p, t in hostile.items() if p.name == "report.html")
+    doc = _parse(overview)
+    assert JINJA_ZONE in "".join(doc.text)  # the zones table shows the name as typed
+    assert JINJA_ZONE in html.unescape("".join(doc.scripts))  # so does the map's tooltip
+
+
 def test_hostile_names_shown_as_text_everywhere(hostile: dict[Path, str]) -> None:
     overview = next(t for p, t in hostile.items() if p.name == "report.html")
     doc = _parse(overview)
@@ -199,7 +216,7 @@ def test_hostile_names_shown_as_text_everywhere(hostile: dict[Path, str]) -> Non
     # folium tooltips (HTML inside JS template literals): escaped, backtick/$ neutralised
     js = "".join(doc.scripts)
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in js
-    assert "&#96;&#36;{alert(2)}&#96; &#92;x" in js
+    assert "&#96;&#36;&#123;alert(2)&#125;&#96; &#92;x" in js
     assert "&quot;&amp;&lt;&gt;" in js  # the rule id in the alert marker's tooltip
     # JSON inside <script>: no raw "<" at all in the data blocks
     data = re.findall(r'<script type="application/json" id="[^"]+">(.*?)</script>', overview, re.S)

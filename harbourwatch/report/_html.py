@@ -10,6 +10,11 @@ Three contexts occur in the reports:
 * JSON inside ``<script>``: :func:`script_json` (ASCII only, ``<``, ``>``
   and ``&`` as ``\\u`` escapes, so neither ``</script>`` nor ``<!--`` can
   appear).
+
+Curly braces in user strings are also written as character references
+(HTML) or ``\\u`` escapes (JSON), so that no user string can ever form a
+template delimiter (``{{``, ``{%``, ``{#``) in anything a template engine
+might see; see also ``report._mapbase._render_macro``.
 """
 
 from __future__ import annotations
@@ -17,14 +22,21 @@ from __future__ import annotations
 import html
 import json
 import math
+import re
 from typing import Any
 
 __all__ = ["esc", "esc_tooltip", "script_json", "fmt_duration", "fmt_prob"]
 
 
 def esc(text: object) -> str:
-    """HTML-escape ``text`` (``& < > " '``) for element content or attributes."""
-    return html.escape(str(text), quote=True)
+    """HTML-escape ``text`` (``& < > " '`` and ``{ }``) for element content or attributes.
+
+    Examples
+    --------
+    >>> esc('<b>{{ x }}</b>')
+    '&lt;b&gt;&#123;&#123; x &#125;&#125;&lt;/b&gt;'
+    """
+    return html.escape(str(text), quote=True).replace("{", "&#123;").replace("}", "&#125;")
 
 
 def esc_tooltip(text: object) -> str:
@@ -43,7 +55,17 @@ def script_json(obj: Any) -> str:
     '{"a":"\\\\u003c/script\\\\u003e"}'
     """
     text = json.dumps(obj, ensure_ascii=True, separators=(",", ":"), allow_nan=False)
-    return text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
+    text = text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
+    if "{" in text:  # braces inside strings as escapes; structural JSON never forms "{{", "{%", "{#"
+        text = _JSON_STRING.sub(_escape_braces, text)
+    return text
+
+
+_JSON_STRING = re.compile(r'"(?:[^"\\]|\\.)*"')
+
+
+def _escape_braces(match: re.Match[str]) -> str:
+    return match.group(0).replace("{", "\\u007b").replace("}", "\\u007d")
 
 
 def fmt_duration(seconds: float) -> str:

@@ -17,7 +17,8 @@ bytes.
 from __future__ import annotations
 
 import re
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any
 
@@ -144,12 +145,59 @@ def _renumber(root: Element) -> None:
         stack.extend(el._children.values())
 
 
+class _Rendered(Element):
+    """Text that is already rendered: returned as it is, never parsed as a template."""
+
+    def __init__(self, text: str) -> None:
+        super().__init__()
+        self._rendered = text
+
+    def render(self, **kwargs: Any) -> str:
+        return self._rendered
+
+
+def _render_macro(self: MacroElement, **kwargs: Any) -> None:
+    """``MacroElement.render`` without parsing the rendered macros as templates again.
+
+    branca wraps each rendered macro in ``Element(text)``, which compiles the
+    text as a jinja template and renders it once more: any ``{{ }}``,
+    ``{% %}`` or ``{# #}`` in it (say, in a zone name shown in a tooltip)
+    would be evaluated as template code, and large rendered blocks
+    (trajectory coordinates) are compiled for nothing. Otherwise the same
+    as branca's method (branca 0.8).
+    """
+    figure = self.get_root()
+    if not isinstance(figure, Figure):
+        raise HarbourwatchError("internal: a map element is rendered outside its page")
+    module = self._template.module.__dict__
+    for part, target in (("header", figure.header), ("html", figure.html), ("script", figure.script)):
+        macro = module.get(part)
+        if macro is not None:
+            target.add_child(_Rendered(macro(self, kwargs)), name=self.get_name())
+    for element in self._children.values():
+        element.render(**kwargs)
+
+
+@contextmanager
+def _macros_rendered_once() -> Iterator[None]:
+    original = MacroElement.render
+    MacroElement.render = _render_macro  # type: ignore[method-assign]
+    try:
+        yield
+    finally:
+        MacroElement.render = original  # type: ignore[method-assign]
+
+
 def render_parts(m: folium.Map) -> MapParts:
-    """Render ``m`` with deterministic ids; return its header, div and script."""
+    """Render ``m`` with deterministic ids; return its header, div and script.
+
+    Rendered macros are never parsed as templates again (see :func:`_render_macro`).
+    """
     fig = m.get_root()
     assert isinstance(fig, Figure)
     _renumber(fig)
-    fig.render()
+    with _macros_rendered_once():
+        fig.render()
     # folium's viewport meta forbids zooming the page: allow it (accessibility)
     header = re.sub(r'<meta name="viewport"[^>]*>',
                     '<meta name="viewport" content="width=device-width, initial-scale=1">',
