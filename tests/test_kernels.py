@@ -131,3 +131,33 @@ def test_written_nodes_hold_the_miss_detection_and_new_moments(rng):
     np.testing.assert_array_equal(store.m[2], [100.0, 0.0, -50.0, 0.0])
     np.testing.assert_array_equal(store.mm[2], [[100.0, 0.0, -50.0, 0.0]] * 2)
     np.testing.assert_allclose(store.qin[:3], [miss_mu[1] @ mot.q, det_mu[0] @ mot.q, mot.initial_mu(1)[0] @ mot.q])
+
+
+@settings(max_examples=40, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 6), m_plots=st.integers(1, 8))
+def test_prefilter_never_drops_a_pair_the_exact_gate_keeps(seed, n, m_plots):
+    # the Euclidean pre-filter must be conservative: every pair whose smaller NIS (numpy
+    # reference, each leaf predicted to the plot's own time) is inside the gate is a candidate
+    from harbourwatch.filter._kernels import gate_candidates
+
+    rng = np.random.default_rng(seed)
+    mot = TwoModeMotion(0.0002, 0.05, interval_s=900.0, duration_s=60.0)
+    m, P, mu = _state(rng, n)
+    m[:, :, [1, 3]] = rng.normal(0, 6, (n, 2, 2))  # speeds of harbour craft
+    t_leaf = rng.uniform(0.0, 5.0, n)
+    tk = 6.0
+    tj = tk + rng.uniform(-2.5, 2.5, m_plots)  # plots of a rotating antenna around the scan time
+    z = m[:, 0, [0, 2]].mean(axis=0) + rng.normal(0, 40, (m_plots, 2))
+    B = rng.normal(0, 3, (m_plots, 2, 2))
+    R = B @ np.swapaxes(B, 1, 2) + 25 * np.eye(2)
+    gate = 18.42  # chi-square 2 dof at 0.9999
+    _, _, _, pm, pP = mot.predict_reference(m, P, mu, np.maximum(tk - t_leaf, 1e-3))
+    leaf_P = np.stack([mot.predict_reference(m[i : i + 1], P[i : i + 1], mu[i : i + 1], np.array([0.0]))[4][0] for i in range(n)])
+    ci, cj = gate_candidates(np.arange(n), pm, pP, leaf_P, t_leaf, tk, mot.q_max, z, R, tj, gate)
+    cand = set(zip(ci.tolist(), cj.tolist(), strict=True))
+    ii, jj = (a.ravel().astype(np.int64) for a in np.meshgrid(np.arange(n), np.arange(m_plots), indexing="ij"))
+    stamp = np.maximum(tj[jj], t_leaf[ii] + 1e-3)
+    nis = mot.score_and_update(m[ii], P[ii], mu[ii], stamp - t_leaf[ii], z[jj], R[jj])[0]
+    kept = {(int(i), int(j)) for i, j, v in zip(ii, jj, nis, strict=True) if v < gate}
+    assert kept <= cand
+    assert list(zip(ci.tolist(), cj.tolist(), strict=True)) == sorted(cand)  # row-major order

@@ -12,6 +12,7 @@ from numpy.typing import NDArray
 from scipy.special import chdtri, ndtr
 
 from . import SensorModel
+from ._kernels import gate_candidates
 
 Array = NDArray[np.float64]
 _POS = [0, 2]
@@ -77,19 +78,11 @@ def gate_pairs(  # type: ignore[no-untyped-def]
     if m == 0 or act.size == 0:
         return empty
     # conservative Euclidean pre-filter, then the exact test at each plot's time
-    pos = pm[act][:, _POS]
-    h = np.maximum(tk - t_leaf[act], 0.0)
-    tr_p = pP[act, 0, 0] + pP[act, 2, 2] + leaf_P[act, 0, 0] + leaf_P[act, 2, 2]
-    tr_p = tr_p + 2.0 * motion.q_max * h**3 / 3.0  # room for the manoeuvre prediction
-    tr_r = R[:, 0, 0] + R[:, 1, 1]
-    speed = np.hypot(pm[act, 1], pm[act, 3])
-    bound = np.sqrt(gate * (2.0 * tr_p[:, None] + tr_r[None, :]))
-    bound += speed[:, None] * np.abs(tk - tj)[None, :] + 1.0
-    d = np.hypot(z[None, :, 0] - pos[:, 0, None], z[None, :, 1] - pos[:, 1, None])
-    a, jj = np.nonzero(d <= bound)
-    if a.size == 0:
+    ii, jj = gate_candidates(
+        act, pm, pP, leaf_P, t_leaf, float(tk), motion.q_max, z, R, tj, float(gate)
+    )
+    if ii.size == 0:
         return empty
-    ii = act[a]
     ok, ll, stamp, m_upd, P_upd, um, uP, post = motion.gate_update(
         leaf_mm, leaf_mP, leaf_mu, t_leaf, ii, jj, tj, z, R, gate, MIN_STEP_S
     )

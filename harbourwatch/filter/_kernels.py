@@ -121,6 +121,40 @@ def imm_predict(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi):  # type: ignore[n
 
 
 @njit(cache=True, nogil=True)
+def gate_candidates(act, pm, pP, leaf_P, t_leaf, tk, q_max, z, R, tj, gate):  # type: ignore[no-untyped-def]
+    """Conservative Euclidean pre-filter of (hypothesis, plot) pairs, in row-major order.
+
+    A pair is a candidate when the plot lies within
+    ``sqrt(gate (2 tr P + tr R)) + speed |tk - tj| + 1`` metres of the
+    hypothesis' position predicted to ``tk``, where ``tr P`` adds the traces
+    of the position blocks of the prediction and of the leaf, plus
+    ``2 q_max h³ / 3`` of room for a manoeuvre over ``h = tk - t_leaf``. The
+    exact per-pair gate (:func:`imm_gate_update`) follows; this bound only
+    keeps that work small and never drops a pair the exact gate would keep.
+    """
+    n = act.shape[0]
+    m = z.shape[0]
+    ii = np.empty(n * m, np.int64)
+    jj = np.empty(n * m, np.int64)
+    cnt = 0
+    for a in range(n):
+        i = act[a]
+        h = max(tk - t_leaf[i], 0.0)
+        tr_p = pP[i, 0, 0] + pP[i, 2, 2] + leaf_P[i, 0, 0] + leaf_P[i, 2, 2]
+        tr_p = tr_p + 2.0 * q_max * h * h * h / 3.0
+        speed = math.hypot(pm[i, 1], pm[i, 3])
+        pe, pn = pm[i, 0], pm[i, 2]
+        for j in range(m):
+            bound = math.sqrt(gate * (2.0 * tr_p + (R[j, 0, 0] + R[j, 1, 1])))
+            bound += speed * abs(tk - tj[j]) + 1.0
+            if math.hypot(z[j, 0] - pe, z[j, 1] - pn) <= bound:
+                ii[cnt] = i
+                jj[cnt] = j
+                cnt += 1
+    return ii[:cnt], jj[:cnt]
+
+
+@njit(cache=True, nogil=True)
 def imm_gate_update(  # type: ignore[no-untyped-def]
     mm, mP, mu, t_leaf, ii, jj, tj, z, R, q, rate_up, rate_down, pi_hi, gate, min_step
 ):
@@ -393,6 +427,10 @@ def warm_up() -> None:
     imm_gate_update(
         mm, mP, mu, np.zeros(1), idx, idx, np.ones(1), np.zeros((1, 2)),
         np.broadcast_to(np.eye(2), (1, 2, 2)).copy(), q, 0.01, 0.1, 0.1, 10.0, 1e-3,
+    )
+    gate_candidates(
+        idx, mm[:, 0], mP[:, 0], mP[:, 0], np.zeros(1), 1.0, 0.05, np.zeros((1, 2)),
+        np.broadcast_to(np.eye(2), (1, 2, 2)).copy(), np.ones(1), 10.0,
     )
     P2 = np.broadcast_to(np.eye(4), (2, 4, 4)).copy()
     rts_smooth_chain(np.arange(2.0), np.zeros((2, 4)), P2, np.zeros((2, 4)), P2 + P2)

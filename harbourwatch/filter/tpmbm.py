@@ -261,6 +261,8 @@ class _Filter:
         # plain Python floats: the per-hypothesis code below reads single entries
         pd_l, ps_l, hard_l = pd.tolist(), ps.tolist(), hard.tolist()
 
+        r_prune = st.existence_prune
+
         def miss_child(old: LocalHyp) -> LocalHyp:
             s = old.slot
             if s < 0 or pd_l[s] <= 0.0:
@@ -271,10 +273,14 @@ class _Filter:
                 if al2 < ALIVE_FLOOR:
                     child.freeze()
                 return child
+            r2, al2, endp2 = step_and_miss(old.r, old.alive, old.end_p, ps_l[s], pd_l[s])
+            if r2 < r_prune:
+                # pruned for certain (prune() drops every r below existence_prune): no
+                # node is written for it (mostly clutter that started nothing)
+                return LocalHyp(old.node, r2, al2, old.end_nodes, endp2)
             if s not in miss_node:
                 miss_node[s] = base + len(pend) // 3
                 pend.extend((_MISS, s, old.node))
-            r2, al2, endp2 = step_and_miss(old.r, old.alive, old.end_p, ps_l[s], pd_l[s])
             child = LocalHyp(miss_node[s], r2, al2, old.end_nodes + (old.node,), endp2)
             if al2 < ALIVE_FLOOR:
                 child.freeze()
