@@ -10,10 +10,18 @@ parent links for node reachability.
 from __future__ import annotations
 
 import numpy as np
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from numba import njit
 
-from harbourwatch.filter._kernels import reachable, rts_smooth_chain, write_nodes
+from harbourwatch.filter._kernels import (
+    _compiled,
+    gate_candidates,
+    reachable,
+    rts_smooth_chain,
+    write_nodes,
+)
 from harbourwatch.filter._motion import TwoModeMotion
 from harbourwatch.filter._nodes import NodeStore
 from harbourwatch.filter.gaussian import kf_predict, rts_smooth
@@ -138,8 +146,6 @@ def test_written_nodes_hold_the_miss_detection_and_new_moments(rng):
 def test_prefilter_never_drops_a_pair_the_exact_gate_keeps(seed, n, m_plots):
     # the Euclidean pre-filter must be conservative: every pair whose smaller NIS (numpy
     # reference, each leaf predicted to the plot's own time) is inside the gate is a candidate
-    from harbourwatch.filter._kernels import gate_candidates
-
     rng = np.random.default_rng(seed)
     mot = TwoModeMotion(0.0002, 0.05, interval_s=900.0, duration_s=60.0)
     m, P, mu = _state(rng, n)
@@ -161,3 +167,13 @@ def test_prefilter_never_drops_a_pair_the_exact_gate_keeps(seed, n, m_plots):
     kept = {(int(i), int(j)) for i, j, v in zip(ii, jj, nis, strict=True) if v < gate}
     assert kept <= cand
     assert list(zip(ci.tolist(), cj.tolist(), strict=True)) == sorted(cand)  # row-major order
+
+
+def test_kernels_still_compile_where_no_cache_folder_can_be_written():
+    # a function without a source file stands for a read-only install: numba has
+    # nowhere to cache it and refuses cache=True, so the kernels fall back to no cache
+    ns: dict = {}
+    exec("def f(x):\n    return 2 * x + 1\n", ns)
+    with pytest.raises(RuntimeError, match="cannot cache"):
+        njit(cache=True)(ns["f"])
+    assert _compiled(ns["f"])(20) == 41

@@ -14,14 +14,30 @@ State order ``[east, v_east, north, v_north]``; plots measure ``[east, north]``.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
+from typing import Any, TypeVar
 
 import numpy as np
 from numba import njit
 
 LOG_2PI = math.log(2.0 * math.pi)
+F = TypeVar("F", bound=Callable[..., Any])
 
 
-@njit(cache=True, nogil=True)
+def _compiled(fn: F) -> F:
+    """``numba.njit`` with the machine code cached on disk when there is a place for it.
+
+    numba refuses ``cache=True`` when neither the package folder nor the
+    user's cache folder is writable (a read-only install without a home
+    folder); the kernels are then compiled afresh on each run instead.
+    """
+    try:
+        return njit(cache=True, nogil=True)(fn)  # type: ignore[return-value]
+    except RuntimeError:
+        return njit(nogil=True)(fn)  # type: ignore[return-value]
+
+
+@_compiled
 def _mix_predict_one(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi, pm, pP, c):  # type: ignore[no-untyped-def]
     """IMM mixing and per-mode CV prediction of one hypothesis, written into ``pm, pP, c``."""
     s = 1.0 - math.exp(-(rate_up + rate_down) * dt)
@@ -82,7 +98,7 @@ def _mix_predict_one(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi, pm, pP, c):  
                 pP[j, k, r] = v
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def _merge_one(mm, mP, w, m, P):  # type: ignore[no-untyped-def]
     """Moment-matched merge of two per-mode Gaussians with weights ``w`` into ``m, P``."""
     for r in range(4):
@@ -101,7 +117,7 @@ def _merge_one(mm, mP, w, m, P):  # type: ignore[no-untyped-def]
             P[k, r] = v
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def imm_predict(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi):  # type: ignore[no-untyped-def]
     """Prediction without a plot for ``n`` hypotheses.
 
@@ -120,7 +136,7 @@ def imm_predict(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi):  # type: ignore[n
     return pm, pP, c, m, P
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def gate_candidates(act, pm, pP, leaf_P, t_leaf, tk, q_max, z, R, tj, gate):  # type: ignore[no-untyped-def]
     """Conservative Euclidean pre-filter of (hypothesis, plot) pairs, in row-major order.
 
@@ -154,7 +170,7 @@ def gate_candidates(act, pm, pP, leaf_P, t_leaf, tk, q_max, z, R, tj, gate):  # 
     return ii[:cnt], jj[:cnt]
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def imm_gate_update(  # type: ignore[no-untyped-def]
     mm, mP, mu, t_leaf, ii, jj, tj, z, R, q, rate_up, rate_down, pi_hi, gate, min_step
 ):
@@ -258,7 +274,7 @@ def imm_gate_update(  # type: ignore[no-untyped-def]
     return cnt, index, ll_out, stamp_out, m_out, P_out, um, uP, post
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def rts_smooth_chain(t, fm, fP, pm, pP):  # type: ignore[no-untyped-def]
     """Rauch-Tung-Striebel smoother along one chain of the CV model.
 
@@ -337,7 +353,7 @@ def rts_smooth_chain(t, fm, fP, pm, pP):  # type: ignore[no-untyped-def]
     return ms, Ps
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def write_nodes(  # type: ignore[no-untyped-def]
     store, start, kinds, src, par, sensor, q, mu_new,
     miss, det, pair_plot, plot_ids, plot_time, z, R, var_v,
@@ -396,7 +412,7 @@ def write_nodes(  # type: ignore[no-untyped-def]
         qin_s[row] = mu_s[row, 0] * q[0] + mu_s[row, 1] * q[1]
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def reachable(parent, n, live):  # type: ignore[no-untyped-def]
     """Nodes ``0..n-1`` reachable from ``live`` by parent links.
 
