@@ -158,6 +158,7 @@ def _progress_printer(enabled: bool) -> Callable[[int, int], None] | None:
 
 def _versions() -> dict[str, str]:
     import folium
+    import numba
     import pyproj
     import scipy
     import shapely
@@ -170,6 +171,7 @@ def _versions() -> dict[str, str]:
         "shapely": shapely.__version__,
         "pyproj": pyproj.__version__,
         "folium": folium.__version__,
+        "numba": numba.__version__,
     }
 
 
