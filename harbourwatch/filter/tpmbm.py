@@ -73,25 +73,21 @@ from ._association import (
 from ._estimate import build_output
 from ._gating import MIN_STEP_S, chi2_gate, cover_detection, gate_pairs
 from ._hypotheses import (
-    ALIVE_FLOOR,
     Bernoulli,
     Cluster,
     LocalHyp,
     detection_log_weight,
-    miss_update,
-    step_and_miss,
 )
 from ._kernels import write_nodes
 from ._motion import TwoModeMotion
 from ._nodes import NodeStore
+from ._scanstep import ChildMaker, group_work
 from ._undetected import UndetectedDensity
 
 __all__ = ["run_tpmbm"]
 
 Array = NDArray[np.float64]
-_POS = [0, 2]
 _COMPACT_MIN = 1 << 16  # nodes: below this the store just grows
-_MISS, _DET, _NEW = 0, 1, 2  # kinds of pending nodes
 _CAP_TEXT = {
     "max_global_hypotheses": "global hypotheses of a cluster cut to max_global_hypotheses",
     "max_local_hypotheses": "local hypotheses of a trajectory cut to max_local_hypotheses",
@@ -235,8 +231,7 @@ class _Filter:
         self._pair_plot = jj
         ln_det = detection_log_weight(r[ii], alive_pred[ii], pd[ii], ll)
         det_pairs: dict[int, list[tuple[int, int]]] = defaultdict(list)
-        ii_l, jj_l = ii.tolist(), jj.tolist()
-        for p, (i, j) in enumerate(zip(ii_l, jj_l, strict=True)):
+        for p, (i, j) in enumerate(zip(ii.tolist(), jj.tolist(), strict=True)):
             det_pairs[i].append((j, p))
 
         # new trajectories from the undetected density
@@ -250,88 +245,24 @@ class _Filter:
         r_new = e / w_new
         self.timers["gate"] += _time.perf_counter() - t0
 
-        # pending nodes, materialised in one batch at the end of the scan
+        # children of the local hypotheses; their nodes are written in one batch below
         t0 = _time.perf_counter()
-        pend: list[int] = []  # flat (kind, source, parent node) triples, see _flush_nodes
-        miss_node: dict[int, int] = {}
-        det_node: dict[int, int] = {}
-        base = self.nodes.n
-        var_v = st.birth_speed_sd_m_s**2
-
-        # plain Python floats: the per-hypothesis code below reads single entries
-        pd_l, ps_l, hard_l = pd.tolist(), ps.tolist(), hard.tolist()
-
-        r_prune = st.existence_prune
-
-        def miss_child(old: LocalHyp) -> LocalHyp:
-            s = old.slot
-            if s < 0 or pd_l[s] <= 0.0:
-                return old
-            if not hard_l[s]:  # just outside the cover: reweight, no new state
-                r2, al2, endp2, _ = miss_update(old.r, old.alive, old.end_p, pd_l[s])
-                child = LocalHyp(old.node, r2, al2, old.end_nodes, endp2)
-                if al2 < ALIVE_FLOOR:
-                    child.freeze()
-                return child
-            r2, al2, endp2 = step_and_miss(old.r, old.alive, old.end_p, ps_l[s], pd_l[s])
-            if r2 < r_prune:
-                # pruned for certain (prune() drops every r below existence_prune): no
-                # node is written for it (mostly clutter that started nothing)
-                return LocalHyp(old.node, r2, al2, old.end_nodes, endp2)
-            if s not in miss_node:
-                miss_node[s] = base + len(pend) // 3
-                pend.extend((_MISS, s, old.node))
-            child = LocalHyp(miss_node[s], r2, al2, old.end_nodes + (old.node,), endp2)
-            if al2 < ALIVE_FLOOR:
-                child.freeze()
-            return child
-
-        def det_child(pair: int, j: int) -> LocalHyp:
-            if pair not in det_node:
-                det_node[pair] = base + len(pend) // 3
-                pend.extend((_DET, pair, lhs[ii_l[pair]].node))
-            return LocalHyp(det_node[pair], 1.0)
-
-        def born(j: int) -> Bernoulli:
-            bid = self._new_bid()
-            pend.extend((_NEW, j, -1))
-            return Bernoulli(bid, [LocalHyp(base + len(pend) // 3 - 1, r_new_l[j])])
-
-        ctx = ScanContext(
-            pd_l, ln_miss.tolist(), det_pairs, ln_det.tolist(), ln_new, miss_child, det_child, born,
-            ln_new.tolist(),
-        )
+        pd_l = pd.tolist()  # plain Python floats: the per-hypothesis code reads single entries
         r_new_l = r_new.tolist()
-
-        # groups: connected components of plots and the clusters they gate with
-        parent = list(range(m + len(self.clusters)))
-
-        def find(a: int) -> int:
-            while parent[a] != a:
-                parent[a] = parent[parent[a]]
-                a = parent[a]
-            return a
-
-        for i, j in zip(ii_l, jj_l, strict=True):
-            ra, rb = find(j), find(m + slot_cluster[i])
-            if ra != rb:
-                parent[ra] = rb
-        groups: dict[int, tuple[list[int], list[int]]] = {}
-        for j in range(m):
-            groups.setdefault(find(j), ([], []))[0].append(j)
-        for ci in range(len(self.clusters)):
-            root = find(m + ci)
-            if root in groups:
-                groups[root][1].append(ci)
-        touched = {ci for _, cis in groups.values() for ci in cis}
-        slots_in_cover = np.flatnonzero(pd > 0)
-        miss_only = sorted({slot_cluster[s] for s in slots_in_cover.tolist()} - touched)
-        new_clusters: list[Cluster] = []
-        busy = touched | set(miss_only)
-        keep_clusters = [c for ci, c in enumerate(self.clusters) if ci not in busy]
-        work: list[tuple[list[int], list[int]]] = [([], [ci]) for ci in miss_only] + sorted(
-            groups.values(), key=lambda g: g[0]
+        ii_l, jj_l = ii.tolist(), jj.tolist()
+        maker = ChildMaker(
+            self.nodes.n, node_idx.tolist(), ii_l, pd_l, ps.tolist(), hard.tolist(), r_new_l,
+            st.existence_prune, self._new_bid,
         )
+        ctx = ScanContext(
+            pd_l, ln_miss.tolist(), det_pairs, ln_det.tolist(), ln_new, maker.miss,
+            maker.detection, maker.born, ln_new.tolist(),
+        )
+        work, busy = group_work(
+            m, len(self.clusters), ii_l, jj_l, slot_cluster, np.flatnonzero(pd > 0).tolist()
+        )
+        keep_clusters = [c for ci, c in enumerate(self.clusters) if ci not in busy]
+        new_clusters: list[Cluster] = []
         updated = []
         for plots, cis in work:
             if self._fast_path(plots, cis, ctx, r_new_l, new_clusters):
@@ -345,7 +276,7 @@ class _Filter:
                     cls, plots, ctx, max_hyp=st.max_global_hypotheses, count_cap=self.count_cap
                 )
             )
-        self._flush_nodes(pend, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, var_v)
+        self._flush_nodes(maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan)
         for berns, table, logw in updated:
             new_clusters.extend(
                 prune(
@@ -427,25 +358,25 @@ class _Filter:
             return True
         return False
 
-    def _flush_nodes(self, pend, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, var_v):  # type: ignore[no-untyped-def]
-        """Materialise the scan's pending nodes in one compiled pass (see ``_kernels.write_nodes``).
+    def _flush_nodes(self, maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan):  # type: ignore[no-untyped-def]
+        """Write the scan's queued nodes in one compiled pass (see ``_kernels.write_nodes``).
 
         A missed detection carries the predicted per-mode moments, a
         detection the updated ones (see :mod:`._motion`); a new trajectory
         starts with both modes equal to its initial Gaussian.
         """
-        if not pend:
+        if not maker.pend:
             return
-        kinds, src, par = np.array(pend, np.int64).reshape(-1, 3).T
+        kinds, src, par = maker.queued()
         nodes = self.nodes
         start = nodes.reserve_rows(kinds.size)
         pmm, pmP, mu_pred = self._miss_modes
         um, uP, mu_upd = self._pair_modes
         write_nodes(
-            nodes.columns(), start, np.ascontiguousarray(kinds), np.ascontiguousarray(src),
-            np.ascontiguousarray(par), scan.sensor, self.motion.q, self.motion.initial_mu(1)[0],
-            (tmiss, pm, pP, pmm, pmP, mu_pred), (stamp, m_upd, P_upd, um, uP, mu_upd),
-            self._pair_plot, scan.plot_ids, scan.plot_time, z, R, var_v,
+            nodes.columns(), start, kinds, src, par, scan.sensor, self.motion.q,
+            self.motion.initial_mu(1)[0], (tmiss, pm, pP, pmm, pmP, mu_pred),
+            (stamp, m_upd, P_upd, um, uP, mu_upd), self._pair_plot, scan.plot_ids,
+            scan.plot_time, z, R, self.settings.birth_speed_sd_m_s**2,
         )
 
     # -- estimates ---------------------------------------------------------------------
