@@ -94,3 +94,12 @@ def plot_rows(sensor_ids: list[str], *, max_rows: int = 25) -> st.SearchStrategy
     return st.lists(row, min_size=0, max_size=max_rows).flatmap(
         lambda rows: st.lists(st.sampled_from(rows), max_size=5).map(lambda extra: rows + extra)
         if rows else st.just(rows))
+
+
+def mode_states(rng, n):  # type: ignore[no-untyped-def]
+    """Random per-mode means ``(n, 2, 4)``, covariances (positive definite) and mode probabilities."""
+    m = rng.normal(0, 50, (n, 2, 4))
+    A = rng.normal(0, 1, (n, 2, 4, 4))
+    P = A @ _np.swapaxes(A, -1, -2) + 4 * _np.eye(4)
+    mu = rng.dirichlet([2, 2], n)
+    return m, P, mu

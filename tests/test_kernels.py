@@ -14,6 +14,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from numba import njit
+from strategies import mode_states
 
 from harbourwatch.filter._kernels import (
     _compiled,
@@ -28,12 +29,15 @@ from harbourwatch.filter.gaussian import kf_predict, rts_smooth
 from harbourwatch.models import cv_process_noise_batch, cv_transition_batch
 
 
-def _state(rng, n):
-    m = rng.normal(0, 50, (n, 2, 4))
-    A = rng.normal(0, 1, (n, 2, 4, 4))
-    P = A @ np.swapaxes(A, -1, -2) + 4 * np.eye(4)
-    mu = rng.dirichlet([2, 2], n)
-    return m, P, mu
+def _plot_covariances(rng, k):
+    B = rng.normal(0, 3, (k, 2, 2))
+    return B @ np.swapaxes(B, 1, 2) + 25 * np.eye(2)
+
+
+def _all_pairs(n, m):
+    """Every (hypothesis, plot) pair, row-major."""
+    ii, jj = np.meshgrid(np.arange(n), np.arange(m), indexing="ij")
+    return ii.ravel().astype(np.int64), jj.ravel().astype(np.int64)
 
 
 @settings(max_examples=30, deadline=None)
@@ -41,7 +45,7 @@ def _state(rng, n):
 def test_compiled_prediction_equals_numpy_reference(seed, n, q_hi):
     rng = np.random.default_rng(seed)
     mot = TwoModeMotion(0.0002, q_hi, interval_s=900.0, duration_s=60.0)
-    m, P, mu = _state(rng, n)
+    m, P, mu = mode_states(rng, n)
     dt = rng.uniform(1e-3, 120.0, n)
     got = mot.predict(m, P, mu, dt)
     ref = mot.predict_reference(m, P, mu, dt)
@@ -56,13 +60,12 @@ def test_compiled_gating_and_update_equal_numpy_reference(seed, n, m_plots):
     # whose smaller NIS is below the gate, with the reference's numbers for each
     rng = np.random.default_rng(seed)
     mot = TwoModeMotion(0.0002, 0.05, interval_s=900.0, duration_s=60.0)
-    m, P, mu = _state(rng, n)
+    m, P, mu = mode_states(rng, n)
     t_leaf = rng.uniform(0.0, 5.0, n)
     tj = rng.uniform(0.0, 10.0, m_plots)
     z = rng.normal(0, 60, (m_plots, 2))
-    B = rng.normal(0, 3, (m_plots, 2, 2))
-    R = B @ np.swapaxes(B, 1, 2) + 25 * np.eye(2)
-    ii, jj = (a.ravel().astype(np.int64) for a in np.meshgrid(np.arange(n), np.arange(m_plots), indexing="ij"))
+    R = _plot_covariances(rng, m_plots)
+    ii, jj = _all_pairs(n, m_plots)
     gate = 13.8  # 0.999 quantile of chi-square with 2 degrees of freedom
     idx, ll, stamp, mg, Pg, um, uP, post = mot.gate_update(m, P, mu, t_leaf, ii, jj, tj, z, R, gate, 1e-3)
     stamp_ref = np.maximum(tj[jj], t_leaf[ii] + 1e-3)
@@ -113,9 +116,9 @@ def test_reachable_equals_breadth_first_walk(data, n):
 def test_written_nodes_hold_the_miss_detection_and_new_moments(rng):
     store = NodeStore(capacity=2)
     mot = TwoModeMotion(0.0002, 0.05, interval_s=900.0, duration_s=60.0)
-    miss_m, miss_P, miss_mu = _state(rng, 2)
+    miss_m, miss_P, miss_mu = mode_states(rng, 2)
     miss = (np.array([5.0, 6.0]), miss_m[:, 0], miss_P[:, 0], miss_m, miss_P, miss_mu)
-    det_m, det_P, det_mu = _state(rng, 1)
+    det_m, det_P, det_mu = mode_states(rng, 1)
     det = (np.array([7.5]), det_m[:, 1], det_P[:, 1], det_m, det_P, det_mu)
     z = np.array([[100.0, -50.0], [3.0, 4.0]])
     R = np.array([[[400.0, 30.0], [30.0, 900.0]], np.eye(2)])
@@ -148,20 +151,19 @@ def test_prefilter_never_drops_a_pair_the_exact_gate_keeps(seed, n, m_plots):
     # reference, each leaf predicted to the plot's own time) is inside the gate is a candidate
     rng = np.random.default_rng(seed)
     mot = TwoModeMotion(0.0002, 0.05, interval_s=900.0, duration_s=60.0)
-    m, P, mu = _state(rng, n)
+    m, P, mu = mode_states(rng, n)
     m[:, :, [1, 3]] = rng.normal(0, 6, (n, 2, 2))  # speeds of harbour craft
     t_leaf = rng.uniform(0.0, 5.0, n)
     tk = 6.0
     tj = tk + rng.uniform(-2.5, 2.5, m_plots)  # plots of a rotating antenna around the scan time
     z = m[:, 0, [0, 2]].mean(axis=0) + rng.normal(0, 40, (m_plots, 2))
-    B = rng.normal(0, 3, (m_plots, 2, 2))
-    R = B @ np.swapaxes(B, 1, 2) + 25 * np.eye(2)
+    R = _plot_covariances(rng, m_plots)
     gate = 18.42  # chi-square 2 dof at 0.9999
     _, _, _, pm, pP = mot.predict_reference(m, P, mu, np.maximum(tk - t_leaf, 1e-3))
     leaf_P = np.stack([mot.predict_reference(m[i : i + 1], P[i : i + 1], mu[i : i + 1], np.array([0.0]))[4][0] for i in range(n)])
     ci, cj = gate_candidates(np.arange(n), pm, pP, leaf_P, t_leaf, tk, mot.q_max, z, R, tj, gate)
     cand = set(zip(ci.tolist(), cj.tolist(), strict=True))
-    ii, jj = (a.ravel().astype(np.int64) for a in np.meshgrid(np.arange(n), np.arange(m_plots), indexing="ij"))
+    ii, jj = _all_pairs(n, m_plots)
     stamp = np.maximum(tj[jj], t_leaf[ii] + 1e-3)
     nis = mot.score_and_update(m[ii], P[ii], mu[ii], stamp - t_leaf[ii], z[jj], R[jj])[0]
     kept = {(int(i), int(j)) for i, j, v in zip(ii, jj, nis, strict=True) if v < gate}

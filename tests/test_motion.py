@@ -5,18 +5,11 @@ from __future__ import annotations
 import numpy as np
 from scipy.linalg import expm
 from scipy.stats import multivariate_normal
+from strategies import mode_states
 
 from harbourwatch.filter._motion import TwoModeMotion, merge
 from harbourwatch.filter.gaussian import kf_predict, kf_update
 from harbourwatch.models import H, cv_process_noise, cv_transition
-
-
-def _state(rng, n):
-    m = rng.normal(0, 50, (n, 2, 4))
-    A = rng.normal(0, 1, (n, 2, 4, 4))
-    P = A @ np.swapaxes(A, -1, -2) + 4 * np.eye(4)
-    mu = rng.dirichlet([2, 2], n)
-    return m, P, mu
 
 
 def test_mode_transition_matches_matrix_exponential(rng):
@@ -31,7 +24,7 @@ def test_mode_transition_matches_matrix_exponential(rng):
 
 def test_merge_is_moment_matching(rng):
     # Reference: mean and covariance of a two-component mixture computed from samples' definition
-    m, P, mu = _state(rng, 3)
+    m, P, mu = mode_states(rng, 3)
     mm, PP = merge(m, P, mu)
     for k in range(3):
         mean = mu[k] @ m[k]
@@ -45,7 +38,7 @@ def test_imm_step_against_direct_computation(rng):
     # (harbourwatch.filter.gaussian, itself checked against scipy), mixture likelihood
     # checked against scipy.stats.multivariate_normal.
     mot = TwoModeMotion(0.0005, 0.05, interval_s=900.0, duration_s=60.0)
-    m, P, mu = _state(rng, 1)
+    m, P, mu = mode_states(rng, 1)
     dt = np.array([2.5])
     z = rng.normal(0, 50, (1, 2))
     R = np.array([[[400.0, 50.0], [50.0, 900.0]]])
@@ -68,7 +61,7 @@ def test_imm_step_against_direct_computation(rng):
 
 def test_equal_levels_reduce_to_one_kalman_filter(rng):
     mot = TwoModeMotion(0.01, 0.01, interval_s=900.0, duration_s=60.0)
-    m, P, _ = _state(rng, 1)
+    m, P, _ = mode_states(rng, 1)
     m[:, 1], P[:, 1] = m[:, 0], P[:, 0]
     mu = np.array([[0.7, 0.3]])
     z, R = np.array([[10.0, -20.0]]), np.array([np.eye(2) * 100.0])

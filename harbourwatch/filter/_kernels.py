@@ -51,25 +51,13 @@ def _mix_predict_one(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi, pm, pP, c):  
     m0 = np.empty(4)
     P0 = np.empty((4, 4))
     FP = np.empty((4, 4))
+    w = np.empty(2)
     dt2, dt3 = dt * dt, dt * dt * dt
     for j in range(2):
         cj = max(c[j], 1e-300)
-        w0 = (j00 if j == 0 else j01) / cj
-        w1 = (j10 if j == 0 else j11) / cj
-        for r in range(4):
-            m0[r] = w0 * mm[0, r] + w1 * mm[1, r]
-        for r in range(4):
-            d0r = mm[0, r] - m0[r]
-            d1r = mm[1, r] - m0[r]
-            for k in range(4):
-                P0[r, k] = w0 * (mP[0, r, k] + d0r * (mm[0, k] - m0[k])) + w1 * (
-                    mP[1, r, k] + d1r * (mm[1, k] - m0[k])
-                )
-        for r in range(4):
-            for k in range(r + 1, 4):
-                v = 0.5 * (P0[r, k] + P0[k, r])
-                P0[r, k] = v
-                P0[k, r] = v
+        w[0] = (j00 if j == 0 else j01) / cj  # mixing weights mu_{i|j}
+        w[1] = (j10 if j == 0 else j11) / cj
+        _merge_one(mm, mP, w, m0, P0)
         # F = [[1, dt, 0, 0], [0, 1, 0, 0], [0, 0, 1, dt], [0, 0, 0, 1]]
         pm[j, 0] = m0[0] + dt * m0[1]
         pm[j, 1] = m0[1]
