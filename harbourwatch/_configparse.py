@@ -11,6 +11,7 @@ from __future__ import annotations
 import math
 import re
 import tomllib
+import unicodedata
 from collections.abc import Iterable, Mapping
 from os import PathLike
 from types import MappingProxyType
@@ -27,6 +28,25 @@ _KEY_RE = re.compile(r"""^\s*(?:"([^"]*)"|'([^']*)'|([A-Za-z0-9_-]+))\s*=""")
 
 
 # --- raw text helpers --------------------------------------------------------------------
+
+
+def control_character(text: str) -> str | None:
+    """Why ``text`` is refused for holding a control character, or ``None`` when it is fine.
+
+    Ids, names and kinds end up in terminal tables, CSV files and web pages;
+    a control character (tab, newline, escape, ...) has no place in any of
+    them and could rewrite what a terminal shows.
+
+    Examples
+    --------
+    >>> control_character("Calder Fairway")
+    >>> control_character("red\x1b[31m")
+    'control character U+001B is not allowed (at position 4)'
+    """
+    for k, ch in enumerate(text):
+        if unicodedata.category(ch) == "Cc":
+            return f"control character U+{ord(ch):04X} is not allowed (at position {k + 1})"
+    return None
 
 
 def _read_text(path: str | PathLike[str]) -> str:
@@ -117,6 +137,9 @@ class _Entry:
         v = self.data[key]
         if not isinstance(v, str) or not v.strip():
             raise self.error(key, f"expected a non-empty string, found {_show(v)}")
+        bad = control_character(v)
+        if bad:
+            raise self.error(key, bad)
         return v
 
     def number(self, key: str, *, lo: float = -math.inf, hi: float = math.inf,

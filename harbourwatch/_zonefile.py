@@ -10,7 +10,7 @@ from typing import Any
 
 from shapely.validation import explain_validity
 
-from ._configparse import _read_text
+from ._configparse import _read_text, control_character
 from .config import ZoneConfig
 from .errors import InputError
 
@@ -87,6 +87,9 @@ def _optional_string(f: _Feature, props: dict[str, Any], key: str, default: str)
         return default
     if not isinstance(v, str):
         raise f.error(f"properties.{key}", f"expected a string, found {json.dumps(v)}")
+    bad = control_character(v)
+    if bad:
+        raise f.error(f"properties.{key}", bad)
     return v
 
 
@@ -136,6 +139,9 @@ def load_zones(path: str | PathLike[str]) -> tuple[ZoneConfig, ...]:
             raise f.error("properties.id",
                           f"expected a non-empty string, found {json.dumps(props['id'])}")
         fid: str = f.id
+        bad = control_character(fid)
+        if bad:
+            raise f.error("properties.id", bad)
         if f.id in seen:
             first = seen[f.id]
             raise f.error("properties.id", f"duplicate zone id {f.id!r}"

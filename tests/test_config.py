@@ -75,6 +75,7 @@ SENSOR_BAD_VALUES = [
     ("max_range_m", "inf", "found inf"),
     ("id", "7", "non-empty string"),
     ("id", '""', "non-empty string"),
+    ("id", '"mole\\u001b[2Jhead"', "control character U+001B"),  # would clear a terminal
 ]
 
 
@@ -196,6 +197,8 @@ def test_zones_not_a_feature_collection(calder):
     (lambda f: f["properties"].update(id=17), "properties.id", "string"),
     (lambda f: f["properties"].update(name=["a"]), "properties.name", "string"),
     (lambda f: f["properties"].update(kind=3), "properties.kind", "string"),
+    (lambda f: f["properties"].update(name="Outer\nRoads"), "properties.name", "U+000A"),
+    (lambda f: f["properties"].update(kind="anchorage\t"), "properties.kind", "U+0009"),
     (lambda f: f["geometry"].update(coordinates=[[[10.18, 54.33], [10.24, 54.37],
                                                   [10.24, 54.33], [10.18, 54.37],
                                                   [10.18, 54.33]]]),
@@ -221,6 +224,14 @@ def test_zone_bad_feature_is_named_and_located(calder, edit, field, words):
     _located(err, calder.zones, line_of(text, needle, nth=1 if isinstance(fid, str) else 3),
              field)
     assert "feature 3" in err.message and words in err.message
+
+
+def test_zone_id_with_a_control_character_is_refused(calder):
+    doc = _doc()
+    doc["features"][1]["properties"]["id"] = "inner\u0007basin"  # the terminal bell
+    _write_zones(calder, doc)
+    err = _raises(load_zones, calder.zones)
+    assert err.field == "properties.id" and "U+0007" in err.message and err.line is not None
 
 
 def test_zone_missing_and_duplicate_id(calder):
@@ -289,6 +300,7 @@ RULE_CASES = [
     ('id = "range-crossing"', 'id = "basin-loiter"', "id", "duplicate", False),
     ('id = "range-crossing"\n', "", "id", "missing", False),
     ('kind = "pass-through"', "kind = 3", "kind", "non-empty string", False),
+    ('id = "range-crossing"', 'id = "range\\rcrossing"', "id", "control character U+000D", False),
     ("min_probability = 0.7", "min_probability = 1.5", "min_probability", "from 0 to 1", False),
     ("min_probability = 0.7", "min_probability = false", "min_probability", "found false", False),
 ]
