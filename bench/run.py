@@ -7,7 +7,8 @@ factor, peak memory of the child, stage timings from run.json, report size),
 then scored against its ground truth. Accuracy: the smaller scenarios of the
 simulator against the oracle (Kalman smoother with the true association).
 
-Set ``BENCH_HOURS`` to shorten the throughput feed (default 6).
+Set ``BENCH_HOURS`` to shorten the throughput feed (default 6) and
+``BENCH_RUNS`` for the number of timed runs (default 2; the slowest counts).
 """
 
 from __future__ import annotations
@@ -50,19 +51,22 @@ def throughput() -> None:
     cmd = [sys.executable, "-m", "harbourwatch", "run", str(feed), "--sensors",
            str(feed_dir / "sensors.toml"), "--zones", str(zones), "--rules", str(rules),
            "--out", str(run_dir), "--quiet"]
-    t = time.perf_counter()
-    proc = subprocess.run(cmd, capture_output=True, text=True)
-    wall = time.perf_counter() - t
+    walls = []
+    for _ in range(max(1, int(os.environ.get("BENCH_RUNS", "2")))):  # shared machines vary
+        t = time.perf_counter()
+        proc = subprocess.run(cmd, capture_output=True, text=True)
+        walls.append(time.perf_counter() - t)
+        if proc.returncode != 0:
+            print(proc.stdout[-3000:], proc.stderr[-3000:])
+            raise SystemExit(f"run failed with status {proc.returncode}")
     peak_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0
-    if proc.returncode != 0:
-        print(proc.stdout[-3000:], proc.stderr[-3000:])
-        raise SystemExit(f"run failed with status {proc.returncode}")
     run = json.loads((run_dir / "run.json").read_text())
     tim = run["timings"]
     feed_s = hours * 3600.0
+    wall = max(walls)
     _line("plots", f"{run['feed']['plots']:,} in {run['feed']['scans']:,} scans")
-    _line("wall time (whole run, child process)", f"{wall:.1f} s")
-    _line("real-time factor", f"{feed_s / wall:.0f}x (target >= 500x)")
+    _line("wall time (whole run, child process)", " / ".join(f"{w:.1f} s" for w in walls))
+    _line("real-time factor (slowest run)", f"{feed_s / wall:.0f}x (target >= 500x)")
     _line("peak memory (child, max RSS)", f"{peak_mb:.0f} MB (target < 2048 MB)")
     for k in ("read_inputs_s", "filter_s", "rules_s", "write_tables_s", "reports_s"):
         _line(f"  stage {k[:-2]}", f"{tim.get(k, float('nan')):.1f} s")
