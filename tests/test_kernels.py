@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import example, given, settings
 from hypothesis import strategies as st
 from numba import njit
 from strategies import mode_states
@@ -144,24 +144,23 @@ def test_written_nodes_hold_the_miss_detection_and_new_moments(rng):
     np.testing.assert_allclose(store.qin[:3], [miss_mu[1] @ mot.q, det_mu[0] @ mot.q, mot.initial_mu(1)[0] @ mot.q])
 
 
-@settings(max_examples=40, deadline=None)
+@settings(max_examples=60, deadline=None)
 @given(seed=st.integers(0, 2**32 - 1), n=st.integers(1, 6), m_plots=st.integers(1, 8))
+@example(seed=210533338, n=5, m_plots=4)  # once found: a low-probability mode far from the merge
 def test_prefilter_never_drops_a_pair_the_exact_gate_keeps(seed, n, m_plots):
-    # the Euclidean pre-filter must be conservative: every pair whose smaller NIS (numpy
-    # reference, each leaf predicted to the plot's own time) is inside the gate is a candidate
+    # the pre-filter must be conservative: every pair whose smaller NIS (numpy reference,
+    # each leaf's modes mixed and predicted to the plot's own time) is inside the gate is
+    # a candidate, including leaves whose two modes disagree a lot
     rng = np.random.default_rng(seed)
     mot = TwoModeMotion(0.0002, 0.05, interval_s=900.0, duration_s=60.0)
     m, P, mu = mode_states(rng, n)
     m[:, :, [1, 3]] = rng.normal(0, 6, (n, 2, 2))  # speeds of harbour craft
     t_leaf = rng.uniform(0.0, 5.0, n)
-    tk = 6.0
-    tj = tk + rng.uniform(-2.5, 2.5, m_plots)  # plots of a rotating antenna around the scan time
+    tj = 6.0 + rng.uniform(-8.0, 2.5, m_plots)  # some plots older than the leaf
     z = m[:, 0, [0, 2]].mean(axis=0) + rng.normal(0, 40, (m_plots, 2))
     R = _plot_covariances(rng, m_plots)
     gate = 18.42  # chi-square 2 dof at 0.9999
-    _, _, _, pm, pP = mot.predict_reference(m, P, mu, np.maximum(tk - t_leaf, 1e-3))
-    leaf_P = np.stack([mot.predict_reference(m[i : i + 1], P[i : i + 1], mu[i : i + 1], np.array([0.0]))[4][0] for i in range(n)])
-    ci, cj = gate_candidates(np.arange(n), pm, pP, leaf_P, t_leaf, tk, mot.q_max, z, R, tj, gate)
+    ci, cj = gate_candidates(np.arange(n), m, P, t_leaf, mot.q_max, z, R, tj, gate, 1e-3)
     cand = set(zip(ci.tolist(), cj.tolist(), strict=True))
     ii, jj = _all_pairs(n, m_plots)
     stamp = np.maximum(tj[jj], t_leaf[ii] + 1e-3)

@@ -1,8 +1,9 @@
 """Gating of (hypothesis, plot) pairs and the per-pair Kalman updates, vectorised.
 
 Each plot is scored at its own time: the hypothesis' leaf is predicted from
-its node time to the plot time (methods note §D, P13). A conservative
-Euclidean pre-filter keeps the exact per-pair test small.
+its node time to the plot time (methods note §D, P13). A cheap pre-filter
+that provably keeps every pair inside the gate keeps the exact per-pair test
+small (``_kernels.gate_candidates``).
 """
 
 from __future__ import annotations
@@ -49,18 +50,16 @@ MIN_STEP_S = 1e-3
 
 
 def gate_pairs(  # type: ignore[no-untyped-def]
-    gate, motion, leaf_mm, leaf_mP, leaf_mu, pd, leaf_m, leaf_P, t_leaf, pm, pP, z, R, tj, tk
+    gate, motion, leaf_mm, leaf_mP, leaf_mu, pd, t_leaf, z, R, tj
 ):
     """Gated pairs ``(i, j, log-lik, node time, merged mean, merged cov, mode means,
     mode covs, mode probabilities)``.
 
     ``motion`` is the two-mode motion model; ``leaf_mm, leaf_mP, leaf_mu`` are
-    the per-mode moments of each hypothesis' leaf, ``leaf_m, leaf_P`` their
-    merge. ``pd`` selects the hypotheses that can be detected; ``pm, pP`` are
-    their predictions to the scan's reference time ``tk`` (for the
-    pre-filter). A pair passes the gate when the plot is inside the ellipsoid
-    of at least one mode's prediction; it is scored with the mode-mixture
-    likelihood (IMM).
+    the per-mode moments of each hypothesis' leaf at ``t_leaf``; ``pd``
+    selects the hypotheses that can be detected. A pair passes the gate when
+    the plot is inside the ellipsoid of at least one mode's prediction to the
+    plot's own time; it is scored with the mode-mixture likelihood (IMM).
     """
     m = z.shape[0]
     act = np.flatnonzero(pd > 0)
@@ -77,9 +76,10 @@ def gate_pairs(  # type: ignore[no-untyped-def]
     )
     if m == 0 or act.size == 0:
         return empty
-    # conservative Euclidean pre-filter, then the exact test at each plot's time
+    # a cheap pre-filter that provably keeps every pair inside the gate, then the exact
+    # test at each plot's time
     ii, jj = gate_candidates(
-        act, pm, pP, leaf_P, t_leaf, float(tk), motion.q_max, z, R, tj, float(gate)
+        act, leaf_mm, leaf_mP, t_leaf, motion.q_max, z, R, tj, float(gate), MIN_STEP_S
     )
     if ii.size == 0:
         return empty

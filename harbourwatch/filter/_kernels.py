@@ -125,16 +125,21 @@ def imm_predict(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi):  # type: ignore[n
 
 
 @_compiled
-def gate_candidates(act, pm, pP, leaf_P, t_leaf, tk, q_max, z, R, tj, gate):  # type: ignore[no-untyped-def]
-    """Conservative Euclidean pre-filter of (hypothesis, plot) pairs, in row-major order.
+def gate_candidates(act, mm, mP, t_leaf, q_max, z, R, tj, gate, min_step):  # type: ignore[no-untyped-def]
+    """Pre-filter of (hypothesis, plot) pairs that provably keeps every pair inside the gate.
 
-    A pair is a candidate when the plot lies within
-    ``sqrt(gate (2 tr P + tr R)) + speed |tk - tj| + 1`` metres of the
-    hypothesis' position predicted to ``tk``, where ``tr P`` adds the traces
-    of the position blocks of the prediction and of the leaf, plus
-    ``2 q_max h³ / 3`` of room for a manoeuvre over ``h = tk - t_leaf``. The
-    exact per-pair gate (:func:`imm_gate_update`) follows; this bound only
-    keeps that work small and never drops a pair the exact gate would keep.
+    For a pair, the exact test (:func:`imm_gate_update`) mixes the leaf's two
+    modes, predicts each over ``dt = max(tj, t_leaf + min_step) - t_leaf``
+    and keeps the pair when some mode has ``νᵀ S⁻¹ ν < gate``. That implies
+    ``|ν|² <= gate λ_max(S) <= gate tr S``. A mixed mode's mean is a convex
+    combination of the two leaf modes, so its predicted position lies on the
+    segment between ``pos_k + dt vel_k`` (k = 0, 1) and
+    ``|ν| >= dist(z, segment)``; its covariance has position and velocity
+    traces at most ``max_k tr_k + |Δ|²/4`` (Δ the difference of the modes'
+    position or velocity), so by Cauchy-Schwarz
+    ``tr S <= (√T_pp + dt √T_vv)² + 2 q_max dt³/3 + tr R``. A pair is a
+    candidate when ``dist(z, segment) <= √(gate · that) + 1 m``.
+    Returned in row-major order (hypothesis, then plot).
     """
     n = act.shape[0]
     m = z.shape[0]
@@ -143,15 +148,25 @@ def gate_candidates(act, pm, pP, leaf_P, t_leaf, tk, q_max, z, R, tj, gate):  # 
     cnt = 0
     for a in range(n):
         i = act[a]
-        h = max(tk - t_leaf[i], 0.0)
-        tr_p = pP[i, 0, 0] + pP[i, 2, 2] + leaf_P[i, 0, 0] + leaf_P[i, 2, 2]
-        tr_p = tr_p + 2.0 * q_max * h * h * h / 3.0
-        speed = math.hypot(pm[i, 1], pm[i, 3])
-        pe, pn = pm[i, 0], pm[i, 2]
+        d_pe, d_pn = mm[i, 1, 0] - mm[i, 0, 0], mm[i, 1, 2] - mm[i, 0, 2]
+        d_ve, d_vn = mm[i, 1, 1] - mm[i, 0, 1], mm[i, 1, 3] - mm[i, 0, 3]
+        t_pp = max(mP[i, 0, 0, 0] + mP[i, 0, 2, 2], mP[i, 1, 0, 0] + mP[i, 1, 2, 2])
+        t_vv = max(mP[i, 0, 1, 1] + mP[i, 0, 3, 3], mP[i, 1, 1, 1] + mP[i, 1, 3, 3])
+        s_pp = math.sqrt(max(t_pp + 0.25 * (d_pe * d_pe + d_pn * d_pn), 0.0))
+        s_vv = math.sqrt(max(t_vv + 0.25 * (d_ve * d_ve + d_vn * d_vn), 0.0))
         for j in range(m):
-            bound = math.sqrt(gate * (2.0 * tr_p + (R[j, 0, 0] + R[j, 1, 1])))
-            bound += speed * abs(tk - tj[j]) + 1.0
-            if math.hypot(z[j, 0] - pe, z[j, 1] - pn) <= bound:
+            dt = max(tj[j], t_leaf[i] + min_step) - t_leaf[i]
+            tr_s = (s_pp + dt * s_vv) ** 2 + 2.0 * q_max * dt * dt * dt / 3.0 + R[j, 0, 0] + R[j, 1, 1]
+            bound = math.sqrt(gate * tr_s) + 1.0
+            # distance from the plot to the segment between the two modes' predicted positions
+            ae = mm[i, 0, 0] + dt * mm[i, 0, 1]
+            an = mm[i, 0, 2] + dt * mm[i, 0, 3]
+            se = d_pe + dt * d_ve
+            sn = d_pn + dt * d_vn
+            ze, zn = z[j, 0] - ae, z[j, 1] - an
+            ss = se * se + sn * sn
+            u = 0.0 if ss <= 0.0 else min(max((ze * se + zn * sn) / ss, 0.0), 1.0)
+            if math.hypot(ze - u * se, zn - u * sn) <= bound:
                 ii[cnt] = i
                 jj[cnt] = j
                 cnt += 1
@@ -433,8 +448,8 @@ def warm_up() -> None:
         np.broadcast_to(np.eye(2), (1, 2, 2)).copy(), q, 0.01, 0.1, 0.1, 10.0, 1e-3,
     )
     gate_candidates(
-        idx, mm[:, 0], mP[:, 0], mP[:, 0], np.zeros(1), 1.0, 0.05, np.zeros((1, 2)),
-        np.broadcast_to(np.eye(2), (1, 2, 2)).copy(), np.ones(1), 10.0,
+        idx, mm, mP, np.zeros(1), 0.05, np.zeros((1, 2)),
+        np.broadcast_to(np.eye(2), (1, 2, 2)).copy(), np.ones(1), 10.0, 1e-3,
     )
     P2 = np.broadcast_to(np.eye(4), (2, 4, 4)).copy()
     rts_smooth_chain(np.arange(2.0), np.zeros((2, 4)), P2, np.zeros((2, 4)), P2 + P2)

@@ -191,8 +191,6 @@ class _Filter:
         n = len(lhs)
         node_idx = np.fromiter((lh.node for lh in lhs), np.int64, n)
         t_leaf = self.nodes.t[node_idx]
-        leaf_m = self.nodes.m[node_idx]
-        leaf_P = self.nodes.P[node_idx]
         leaf_mm = self.nodes.mm[node_idx]
         leaf_mP = self.nodes.mP[node_idx]
         leaf_mu = self.nodes.mu[node_idx]
@@ -221,10 +219,7 @@ class _Filter:
         # gating and detection children (vectorised over hypothesis x plot)
         t0 = _time.perf_counter()
         z, R, tj = scan.z, scan.R, scan.plot_time
-        pairs = gate_pairs(
-            self.gate, self.motion, leaf_mm, leaf_mP, leaf_mu, pd, leaf_m, leaf_P, t_leaf,
-            pm, pP, z, R, tj, tk,
-        )
+        pairs = gate_pairs(self.gate, self.motion, leaf_mm, leaf_mP, leaf_mu, pd, t_leaf, z, R, tj)
         ii, jj, ll, stamp, m_upd, P_upd, um, uP, mu_upd = pairs
         self._pair_modes = (um, uP, mu_upd)
         self._miss_modes = (pmm, pmP, mu_pred)
