@@ -55,6 +55,9 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--grid-s", type=float, default=10.0)
     s.add_argument("--max-gap-s", type=float, default=60.0,
                    help="no interpolation across gaps longer than this within one trajectory")
+    s.add_argument("--tgospa-window-min", type=float, default=0.0,
+                   help="solve the trajectory GOSPA in windows of this many minutes (long "
+                        "feeds); reports an upper and a lower bound. 0: the whole feed at once")
     s.add_argument("--json", action="store_true", help="print one JSON object")
     s.add_argument("--plot", metavar="FILE", default=None,
                    help="write the metric over time to FILE (.png or .html)")
@@ -91,6 +94,7 @@ def _cmd_score(a: argparse.Namespace) -> int:
     report = score_files(
         a.tracks, a.truth, cutoff_m=a.cutoff_m, order=a.order,
         switch_cost_m=a.switch_cost_m, grid_s=a.grid_s, max_gap_s=a.max_gap_s,
+        tgospa_window_s=60.0 * a.tgospa_window_min,
     )
     if a.plot:
         write_score_plot(report, a.plot)

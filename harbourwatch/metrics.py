@@ -31,6 +31,7 @@ Conventions shared by both:
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
@@ -179,6 +180,17 @@ class TGospaResult:
     n_components, largest_lp_variables
         How the problem was split: number of clusters solved by LP and the
         variable count of the largest one.
+    truth_span
+        ``(nx, 2)`` int: for each truth, the grid steps ``[start, end)`` of
+        the LP cluster it belongs to, ``(-1, -1)`` when in none. Outside that
+        span all of the cluster's trajectories are absent, so its assignments
+        may be carried on there at no cost.
+    lower, windows
+        When the LP was solved in time windows (see
+        :func:`harbourwatch.tgospa_windows.trajectory_gospa_windowed`):
+        a lower bound of the metric and the number of windows; ``value`` is
+        then the cost of a feasible assignment, an upper bound. Solved whole:
+        ``lower == value`` and ``windows == 1``.
     """
 
     value: float
@@ -195,6 +207,14 @@ class TGospaResult:
     fractional: bool
     n_components: int
     largest_lp_variables: int
+    truth_span: NDArray[np.intp] | None = None
+    lower: float = math.nan
+    windows: int = 1
+
+    @property
+    def exact(self) -> bool:
+        """True when ``value`` is the metric itself (not only an upper bound)."""
+        return self.windows == 1 or self.value <= self.lower * (1.0 + 1e-9) + 1e-12
 
 
 def _as_traj(a: ArrayLike, name: str) -> Array:
@@ -342,6 +362,7 @@ def trajectory_gospa(
     false_t = half * ey.sum(axis=0).astype(float)
     switch_t = np.zeros(max(T - 1, 0))
     assignment = np.full((T, nx), -1, dtype=np.intp)
+    span = np.full((nx, 2), -1, dtype=np.intp)
     matched = np.zeros((T, nx), dtype=bool)
     fractional = False
     n_comp = 0
@@ -360,6 +381,7 @@ def trajectory_gospa(
             present = ex[ci].any(axis=0) | ey[cj].any(axis=0)
             steps = np.nonzero(present)[0]
             t0, t1 = int(steps[0]), int(steps[-1]) + 1
+            span[ci] = (t0, t1)
             ei = np.searchsorted(ci, gi[sel])
             ej = np.searchsorted(cj, gj[sel])
             Xc, Yc = Xa[ci, t0:t1], Ya[cj, t0:t1]
@@ -401,7 +423,7 @@ def trajectory_gospa(
         value=value, localisation=loc, missed=mis, false=fal, switch=sw,
         localisation_t=loc_t, missed_t=missed_t, false_t=false_t, switch_t=switch_t,
         assignment=assignment, matched=matched, fractional=fractional,
-        n_components=n_comp, largest_lp_variables=largest,
+        n_components=n_comp, largest_lp_variables=largest, truth_span=span, lower=value,
     )
 
 

@@ -60,6 +60,7 @@ from ._scoreread import ScoreTable, group_by_track, read_score_csv
 from .errors import InputError
 from .geodesy import LocalFrame
 from .metrics import TGospaResult, gospa, grid_trajectories, trajectory_gospa
+from .tgospa_windows import trajectory_gospa_windowed
 from .timefmt import format_utc_one
 
 __all__ = ["ScoreReport", "score_files", "write_score_plot"]
@@ -82,6 +83,7 @@ class ScoreReport:
     switch_cost_m: float
     grid_s: float
     max_gap_s: float
+    tgospa_window_s: float
     grid_t: Array
     gospa_t: Array
     gospa_parts_t: Array          # (T, 3) localisation, missed, false (p-th powers)
@@ -105,6 +107,9 @@ class ScoreReport:
             "tgospa_parts": {"localisation": _num(tg.localisation), "missed": _num(tg.missed),
                              "false": _num(tg.false), "switch": _num(tg.switch)},
             "tgospa_fractional": tg.fractional,
+            "tgospa_lower": _num(tg.lower),
+            "tgospa_exact": tg.exact,
+            "tgospa_windows": tg.windows,
             "grid_steps": T,
             "start": format_utc_one(self.grid_t[0]) if T else None,
             "end": format_utc_one(self.grid_t[-1]) if T else None,
@@ -112,7 +117,8 @@ class ScoreReport:
             "estimated_tracks": len(self.track_ids),
             "parameters": {"cutoff_m": self.cutoff_m, "order": self.order,
                            "switch_cost_m": self.switch_cost_m, "grid_s": self.grid_s,
-                           "max_gap_s": self.max_gap_s},
+                           "max_gap_s": self.max_gap_s,
+                           "tgospa_window_min": self.tgospa_window_s / 60.0},
             **{k: _num(v) for k, v in self.figures.items()},
             "per_truth": {k: {kk: _num(vv) for kk, vv in v.items()}
                           for k, v in self.per_truth.items()},
@@ -139,7 +145,11 @@ class ScoreReport:
             f"  GOSPA, mean over steps          {f(d['gospa_mean'], '.2f')} m",
             f"    localisation / missed / false {f(d['gospa']['localisation'])} / "
             f"{f(d['gospa']['missed'])} / {f(d['gospa']['false'])} {unit} (means)",
-            f"  trajectory GOSPA (LP)           {f(d['tgospa'], '.2f')} m",
+            f"  trajectory GOSPA (LP)           {f(d['tgospa'], '.2f')} m"
+            + ("" if d["tgospa_windows"] == 1 else
+               f" at most, at least {f(d['tgospa_lower'], '.2f')} m "
+               f"({d['tgospa_windows']} windows of {self.tgospa_window_s / 60:g} min"
+               + (", exact)" if d["tgospa_exact"] else ")")),
             "    localisation / missed / false / switch  "
             + " / ".join(f(d["tgospa_parts"][k], ".0f")
                          for k in ("localisation", "missed", "false", "switch"))
@@ -175,8 +185,10 @@ def _num(v: Any) -> Any:
 
 # --------------------------------------------------------------------------- scoring
 def _check_options(cutoff_m: float, order: float, switch_cost_m: float, grid_s: float,
-                   max_gap_s: float) -> None:
-    checks = [("--cutoff-m", cutoff_m, cutoff_m > 0, "a positive number of metres"),
+                   max_gap_s: float, tgospa_window_s: float = 0.0) -> None:
+    checks = [("--tgospa-window-min", tgospa_window_s / 60.0, tgospa_window_s >= 0,
+               "0 (the whole feed) or a positive number of minutes"),
+              ("--cutoff-m", cutoff_m, cutoff_m > 0, "a positive number of metres"),
               ("--order", order, order >= 1, "a number >= 1"),
               ("--switch-cost-m", switch_cost_m, switch_cost_m > 0, "a positive number of metres"),
               ("--grid-s", grid_s, grid_s >= 0, "0 (time stamps) or a positive number of seconds"),
@@ -319,6 +331,7 @@ def score_files(
     switch_cost_m: float = 100.0,
     grid_s: float = 10.0,
     max_gap_s: float = 60.0,
+    tgospa_window_s: float = 0.0,
 ) -> ScoreReport:
     """Score a run's ``tracks.csv`` against a ground-truth CSV.
 
@@ -335,6 +348,12 @@ def score_files(
     max_gap_s
         No interpolation across a gap longer than this between consecutive
         states of one trajectory (it is absent inside the gap).
+    tgospa_window_s
+        ``0``: the trajectory GOSPA's linear program over the whole feed
+        (exact). Otherwise solved in windows of this length, which keeps long
+        feeds tractable; the report then holds an upper bound (``tgospa``,
+        the cost of a feasible assignment) and a lower bound
+        (``tgospa_lower``); see :mod:`harbourwatch.tgospa_windows`.
 
     Raises
     ------
@@ -342,15 +361,22 @@ def score_files(
         Unreadable files, missing columns, bad numbers or times (naming file,
         line and field), bad options, both files without rows.
     """
-    _check_options(cutoff_m, order, switch_cost_m, grid_s, max_gap_s)
+    _check_options(cutoff_m, order, switch_cost_m, grid_s, max_gap_s, tgospa_window_s)
     g = _gridded(tracks_path, truth_path, grid_s=grid_s, max_gap_s=max_gap_s)
     X, eg, Y, grid = g.X, g.eg, g.Y, g.grid
     g_t, parts_t = _per_step_gospa(X, Y, c=cutoff_m, p=order)
-    tg = trajectory_gospa(X, Y, c=cutoff_m, p=order, gamma=switch_cost_m)
+    if tgospa_window_s > 0 and grid.size:
+        n_win = max(1, math.ceil((grid[-1] - grid[0]) / tgospa_window_s))
+        starts = grid[0] + tgospa_window_s * np.arange(1, n_win)
+        tg = trajectory_gospa_windowed(X, Y, c=cutoff_m, p=order, gamma=switch_cost_m,
+                                       cuts=np.searchsorted(grid, starts).tolist())
+    else:
+        tg = trajectory_gospa(X, Y, c=cutoff_m, p=order, gamma=switch_cost_m)
     figures, per_truth = _engineer_figures(X, eg, g.has_vel, grid, tg, g.truth_ids, g.frame)
     return ScoreReport(
         tracks_path=g.tracks_path, truth_path=g.truth_path, cutoff_m=cutoff_m, order=order,
-        switch_cost_m=switch_cost_m, grid_s=grid_s, max_gap_s=max_gap_s, grid_t=grid,
+        switch_cost_m=switch_cost_m, grid_s=grid_s, max_gap_s=max_gap_s,
+        tgospa_window_s=tgospa_window_s, grid_t=grid,
         gospa_t=g_t, gospa_parts_t=parts_t, tgospa=tg, truth_ids=tuple(g.truth_ids),
         track_ids=tuple(g.track_ids), figures=figures, per_truth=per_truth,
     )

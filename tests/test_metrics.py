@@ -387,3 +387,37 @@ def test_tgospa_matches_published_forms_on_crowded_random_cases(rng: np.random.G
             assert r.value == pytest.approx(d_int, rel=1e-6, abs=1e-6)
         switched += r.switch > 0
     assert switched >= 5  # the cases do exercise the switch cost
+
+
+@LP
+@given(trajectory_sets(steps=6, max_trajectories=3), trajectory_sets(steps=6, max_trajectories=3),
+       st.sets(st.integers(1, 5), max_size=3), st.sampled_from([4.0, 10.0]),
+       st.sampled_from([1.0, 2.0]), st.sampled_from([2.0, 6.0]))
+def test_windowed_tgospa_brackets_the_exact_value(X, Y, cuts, c, p, gamma) -> None:
+    # the windows' optima sum to a lower bound; with the boundary switches of their
+    # solutions added, to the cost of a feasible assignment: an upper bound
+    from harbourwatch.tgospa_windows import trajectory_gospa_windowed
+
+    exact = trajectory_gospa(X, Y, c=c, p=p, gamma=gamma).value
+    w = trajectory_gospa_windowed(X, Y, c=c, p=p, gamma=gamma, cuts=sorted(cuts))
+    assert w.lower <= exact + 1e-6
+    assert exact <= w.value + 1e-6
+    assert w.windows == len(cuts) + 1
+    assert w.value**p == pytest.approx(w.localisation + w.missed + w.false + w.switch,
+                                       rel=1e-6, abs=1e-6)
+    assert w.switch_t.size == X.shape[1] - 1 and w.assignment.shape == (X.shape[0], X.shape[1])[::-1]
+    if w.exact:
+        assert w.value == pytest.approx(exact, rel=1e-6, abs=1e-6)
+
+
+def test_windowed_tgospa_is_exact_when_nothing_switches_at_a_boundary() -> None:
+    # two vessels tracked without a switch: windows cannot change the value (computed by hand:
+    # each estimate 1 m off its vessel at each of 6 steps, p = 2: 12 m^2, value sqrt(12))
+    from harbourwatch.tgospa_windows import trajectory_gospa_windowed
+
+    t = np.arange(6.0)
+    X = np.stack([np.c_[t, 0 * t], np.c_[t, 50 + 0 * t]])
+    Y = X + np.array([1.0, 0.0])
+    w = trajectory_gospa_windowed(X, Y, c=10.0, p=2.0, gamma=5.0, cuts=[2, 4])
+    assert w.exact and w.windows == 3
+    assert w.value == pytest.approx(math.sqrt(12.0)) and w.lower == pytest.approx(w.value)

@@ -258,6 +258,34 @@ def test_cli_json_has_the_contract_keys(pilot, capsys) -> None:
     assert f"{d['tgospa']:.2f}" in out and "identity swaps" in out
 
 
+def test_cli_windowed_trajectory_gospa_brackets_the_whole_feed_value(tmp_path, capsys) -> None:
+    # Two vessels 300 m apart steaming north for 10 min; the estimates swap identity at
+    # 5 min and one estimate is missing for a minute. Scored in 2-minute windows, the
+    # report brackets the exact value (whole-feed LP) between its two bounds.
+    t = T0 + 10.0 * np.arange(61)
+    lat_a, lon_a = northbound(t, 8.0)
+    lat_b, lon_b = offset(lat_a, lon_a, 90.0, 300.0)
+    truth = write_csv(tmp_path / "truth.csv", ["track", "time", "lat", "lon"],
+                      truth_rows("a", t, lat_a, lon_a) + truth_rows("b", t, lat_b, lon_b))
+    first, second, gap = t < T0 + 300.0, t >= T0 + 300.0, (t > T0 + 400.0) & (t < T0 + 460.0)
+    rows = (track_rows("T1", t[first], lat_a[first], lon_a[first], 8.0, 0.0)
+            + track_rows("T1", t[second], lat_b[second], lon_b[second], 8.0, 0.0)
+            + track_rows("T2", t[first], lat_b[first], lon_b[first], 8.0, 0.0)
+            + track_rows("T2", t[second & ~gap], lat_a[second & ~gap], lon_a[second & ~gap], 8.0, 0.0))
+    tracks = write_csv(tmp_path / "tracks.csv", HEADER_TRACKS, rows)
+    assert main(["score", str(tracks), str(truth), "--json"]) == 0
+    whole = json.loads(capsys.readouterr().out)
+    assert whole["tgospa_windows"] == 1 and whole["tgospa_exact"] is True
+    assert whole["tgospa_lower"] == whole["tgospa"]
+    assert main(["score", str(tracks), str(truth), "--json", "--tgospa-window-min", "2"]) == 0
+    win = json.loads(capsys.readouterr().out)
+    assert win["tgospa_windows"] == 5 and win["parameters"]["tgospa_window_min"] == 2.0
+    assert win["tgospa_lower"] <= whole["tgospa"] + 1e-9 <= win["tgospa"] + 2e-9
+    assert win["gospa_mean"] == whole["gospa_mean"]  # the per-step metric is untouched
+    assert main(["score", str(tracks), str(truth), "--tgospa-window-min", "2"]) == 0
+    assert "5 windows of 2 min" in capsys.readouterr().out
+
+
 def test_cli_identical_files_give_zeros(pilot, capsys) -> None:
     _, truth, _ = pilot
     assert main(["score", str(truth), str(truth), "--json", "--grid-s", "0"]) == 0
@@ -294,7 +322,7 @@ def test_cli_bad_truth_exits_2_naming_file_line_field(pilot, tmp_path, capsys, h
 
 @pytest.mark.parametrize("opt", [["--cutoff-m", "0"], ["--order", "0.5"],
                                  ["--switch-cost-m", "-1"], ["--grid-s", "-10"],
-                                 ["--max-gap-s", "0"]])
+                                 ["--max-gap-s", "0"], ["--tgospa-window-min", "-5"]])
 def test_cli_bad_options_exit_2(pilot, capsys, opt) -> None:
     tracks, truth, _ = pilot
     assert main(["score", str(tracks), str(truth), *opt]) == 2
