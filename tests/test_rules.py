@@ -21,13 +21,11 @@ from hypothesis import strategies as st
 from pyproj import Geod
 from shapely.geometry import MultiPolygon, Polygon
 
-from harbourwatch._rule_kinds import find_episodes
-from harbourwatch.config import KNOT_M_S, RuleConfig, ZoneConfig
 from harbourwatch.errors import InputError
-from harbourwatch.filter.gaussian import ffbs_sample, kf_predict, kf_update, rts_smooth
-from harbourwatch.geodesy import LocalFrame
-from harbourwatch.models import cv_process_noise, cv_transition
-from harbourwatch.rules import (
+from harbourwatch.io.records import RuleConfig, ZoneConfig
+from harbourwatch.models.cv import cv_process_noise, cv_transition
+from harbourwatch.models.gaussian import ffbs_sample, kf_predict, kf_update, rts_smooth
+from harbourwatch.rules.evaluate import (
     ALERT_COLUMNS,
     RULE_KINDS,
     RULE_SCHEMAS,
@@ -40,8 +38,11 @@ from harbourwatch.rules import (
     validate_rules,
     write_alerts_csv,
 )
+from harbourwatch.rules.kinds import find_episodes
+from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.scene.zones import LocalZone
 from harbourwatch.trajectories import AsSeenTable, Trajectory, TrajectorySet
-from harbourwatch.zones import LocalZone
+from harbourwatch.units import KNOT_M_S
 
 #: Centre of the invented Port Calder frame (an arbitrary open-sea position).
 FRAME = LocalFrame(56.02, -4.71)
@@ -521,7 +522,7 @@ def test_existence_scales_the_probability(scenario: dict[str, Vessel]) -> None:
 
 
 def test_contract_example_rules_load_with_these_kinds(tmp_path) -> None:  # type: ignore[no-untyped-def]
-    from harbourwatch.config import load_rules
+    from harbourwatch.io.toml_files import load_rules
 
     # the rules example of the file contract (shared formats.md), verbatim keys
     text = """

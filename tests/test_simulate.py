@@ -21,9 +21,9 @@ from scipy import stats
 from shapely.geometry import Point, shape
 
 from harbourwatch.cli import main as cli_main
-from harbourwatch.config import KNOT_M_S, SensorConfig
-from harbourwatch.geodesy import WGS84_GEOD, LocalFrame
-from harbourwatch.simulate import (
+from harbourwatch.io.records import SensorConfig
+from harbourwatch.scene.geodesy import WGS84_GEOD, LocalFrame
+from harbourwatch.sim import (
     SCENARIOS,
     Leg,
     Scenario,
@@ -36,6 +36,7 @@ from harbourwatch.simulate import (
     simulate,
     simulate_to_dir,
 )
+from harbourwatch.units import KNOT_M_S
 
 GEOD = WGS84_GEOD
 REPO = Path(__file__).resolve().parents[1]

@@ -1,6 +1,6 @@
 """Private: reading and validating the sensor TOML, zones GeoJSON and rules TOML.
 
-Public entry points are re-exported by :mod:`harbourwatch.config`. ``tomllib``
+Public entry points are re-exported by :mod:`harbourwatch.io.records`. ``tomllib``
 and ``json`` give no line numbers for values, so small scanners of the raw
 text locate the ``[[table]]`` headers, the keys inside each, and GeoJSON
 features, to point every message at a line.
@@ -11,59 +11,24 @@ from __future__ import annotations
 import math
 import re
 import tomllib
-import unicodedata
 from collections.abc import Iterable, Mapping
 from os import PathLike
 from types import MappingProxyType
 from typing import Any
 
-from .config import ParamSpec, RuleConfig, RuleSchema, SensorConfig, ZoneConfig
-from .errors import InputError
+from harbourwatch.errors import InputError
+from harbourwatch.io.records import ParamSpec, RuleConfig, RuleSchema, SensorConfig, ZoneConfig
+from harbourwatch.io.text import control_character, read_text
 
-__all__ = ["load_sensors", "load_zones", "load_rules"]
+__all__ = ["load_sensors", "load_rules"]
 
 _TABLE_RE = re.compile(r"^\s*\[")
 _ARRAY_TABLE_RE = re.compile(r"^\s*\[\[\s*([^\]]+?)\s*\]\]")
 _KEY_RE = re.compile(r"""^\s*(?:"([^"]*)"|'([^']*)'|([A-Za-z0-9_-]+))\s*=""")
 
 
-# --- raw text helpers --------------------------------------------------------------------
-
-
-def control_character(text: str) -> str | None:
-    """Why ``text`` is refused for holding a control character, or ``None`` when it is fine.
-
-    Ids, names and kinds end up in terminal tables, CSV files and web pages;
-    a control character (tab, newline, escape, ...) has no place in any of
-    them and could rewrite what a terminal shows.
-
-    Examples
-    --------
-    >>> control_character("Calder Fairway")
-    >>> control_character("red\x1b[31m")
-    'control character U+001B is not allowed (at position 4)'
-    """
-    for k, ch in enumerate(text):
-        if unicodedata.category(ch) == "Cc":
-            return f"control character U+{ord(ch):04X} is not allowed (at position {k + 1})"
-    return None
-
-
-def _read_text(path: str | PathLike[str]) -> str:
-    try:
-        with open(path, "rb") as fh:
-            data = fh.read()
-    except OSError as exc:
-        raise InputError(f"cannot read the file: {exc.strerror or exc}", file=path) from None
-    try:
-        return data.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = data[: exc.start].count(b"\n") + 1
-        raise InputError("not valid UTF-8 text", file=path, line=line) from None
-
-
 def _read_toml(path: str | PathLike[str]) -> tuple[dict[str, Any], str]:
-    text = _read_text(path)
+    text = read_text(path)
     try:
         return tomllib.loads(text), text
     except tomllib.TOMLDecodeError as exc:
@@ -216,7 +181,7 @@ def load_sensors(path: str | PathLike[str]) -> tuple[SensorConfig, ...]:
     Examples
     --------
     A file holding the example of the file contract gives one
-    :class:`~harbourwatch.config.SensorConfig` with ``lat_deg=54.3012``.
+    :class:`~harbourwatch.io.records.SensorConfig` with ``lat_deg=54.3012``.
     """
     data, text = _read_toml(path)
     entries = _entries(path, data, text, "sensor")
@@ -337,5 +302,3 @@ def _rule_params(e: _Entry, schema: RuleSchema | None) -> dict[str, Any]:
                                            hi=spec.max_value, what=what)
     return params
 
-
-from ._zonefile import load_zones  # noqa: E402  (zones need geopandas; kept apart)

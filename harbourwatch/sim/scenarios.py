@@ -14,9 +14,10 @@ from collections.abc import Callable
 
 import numpy as np
 
-from .config import SensorConfig
-from .geodesy import LocalFrame
-from .simulate import Leg, Scenario, ScenarioSpec, SimSensor, VesselPlan, arpa_sigmas
+from harbourwatch.io.records import SensorConfig
+from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.sim.engine import arpa_sigmas
+from harbourwatch.sim.model import Leg, Scenario, ScenarioSpec, SimSensor, VesselPlan
 
 __all__ = ["SCENARIOS", "PORT_CALDER_ORIGIN", "port_calder_zones_geojson", "PORT_CALDER_RULES"]
 

@@ -1,6 +1,6 @@
 """Geofence rules over whole trajectories, with a probability on every alert.
 
-How an alert is found (see :mod:`harbourwatch._rule_kinds` for the kinds and
+How an alert is found (see :mod:`harbourwatch.rules.kinds` for the kinds and
 the episode convention; brief excursions up to ``GAP_TOLERANCE_S`` = 30 s do
 not split an episode):
 
@@ -50,8 +50,12 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from ._io import atomic_open
-from ._rule_kinds import (
+from harbourwatch.errors import ParameterError
+from harbourwatch.io.atomic import atomic_open
+from harbourwatch.io.records import RuleConfig, ZoneConfig
+from harbourwatch.io.timefmt import format_clock, format_utc
+from harbourwatch.models.cv import cv_transition_batch
+from harbourwatch.rules.kinds import (
     GAP_TOLERANCE_S,
     NEAR_MISS_SD,
     RULE_KINDS,
@@ -64,11 +68,8 @@ from ._rule_kinds import (
     register_kind,
     validate_rules,
 )
-from .config import RuleConfig, ZoneConfig
-from .models import cv_transition_batch
-from .timefmt import format_clock, format_utc
-from .trajectories import Trajectory, TrajectorySet
-from .zones import LocalZone, local_zones
+from harbourwatch.scene.zones import LocalZone, local_zones
+from harbourwatch.trajectories import Trajectory, TrajectorySet
 
 __all__ = [
     "Alert",
@@ -409,7 +410,7 @@ def _evaluate_pair(
 
 def evaluate_rules(
     trajectories: TrajectorySet,
-    zones: Sequence[ZoneConfig],
+    zones: Mapping[str, LocalZone] | Sequence[ZoneConfig],
     rules: Sequence[RuleConfig],
     *,
     seed: int = 0,
@@ -434,12 +435,12 @@ def evaluate_rules(
         Sorted by ``(start, rule, track, other_track)``.
     """
     if n_samples < 1:
-        raise ValueError("n_samples must be at least 1")
-    validate_rules(rules, zones)
-    used = {r.zone for r in rules if r.zone is not None}
-    local: dict[str, LocalZone] = local_zones(
-        [z for z in zones if z.id in used], trajectories.frame
-    )
+        raise ParameterError("must be at least 1", parameter="n_samples")
+    if isinstance(zones, Mapping):
+        local: Mapping[str, LocalZone] = zones
+    else:
+        used = {r.zone for r in rules if r.zone is not None}
+        local = local_zones([z for z in zones if z.id in used], trajectories.frame)
     trajs = sorted(trajectories.trajectories, key=lambda tr: tr.id)
     alerts: list[Alert] = []
     for rule in rules:

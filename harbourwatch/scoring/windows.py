@@ -1,6 +1,6 @@
 """Trajectory GOSPA of long feeds, solved in time windows with certified bounds.
 
-The linear program of :func:`harbourwatch.metrics.trajectory_gospa` couples
+The linear program of :func:`harbourwatch.scoring.metrics.trajectory_gospa` couples
 every time step of a cluster of trajectories; over a whole shift in a busy
 harbour nearly every vessel joins one cluster and the program grows past
 what a solver handles in reasonable time (a 6-hour benchmark did not finish
@@ -30,7 +30,7 @@ from collections.abc import Sequence
 import numpy as np
 from numpy.typing import ArrayLike
 
-from .metrics import TGospaResult, trajectory_gospa
+from harbourwatch.scoring.metrics import TGospaResult, trajectory_gospa
 
 __all__ = ["trajectory_gospa_windowed"]
 
@@ -43,7 +43,7 @@ def trajectory_gospa_windowed(
     Parameters
     ----------
     X, Y, c, p, gamma
-        As :func:`harbourwatch.metrics.trajectory_gospa`.
+        As :func:`harbourwatch.scoring.metrics.trajectory_gospa`.
     cuts
         Grid steps where a new window starts (0 and ``T`` are implied;
         others outside ``(0, T)`` are ignored).

@@ -41,6 +41,8 @@ from scipy import sparse
 from scipy.optimize import linear_sum_assignment, linprog
 from scipy.sparse.csgraph import connected_components
 
+from harbourwatch.errors import ComputationError, ParameterError
+
 __all__ = [
     "GospaResult",
     "TGospaResult",
@@ -60,15 +62,15 @@ def _as_points(a: ArrayLike, name: str) -> Array:
     if arr.size == 0:
         return arr.reshape(0, arr.shape[-1] if arr.ndim == 2 else 2)
     if arr.ndim != 2:
-        raise ValueError(f"{name} must have shape (n, d), got {arr.shape}")
+        raise ParameterError(f"must have shape (n, d), got {arr.shape}", parameter=name)
     return arr
 
 
 def _check_params(c: float, p: float) -> None:
     if not (np.isfinite(c) and c > 0):
-        raise ValueError(f"cut-off c must be a positive number, got {c!r}")
+        raise ParameterError(f"cut-off c must be a positive number, got {c!r}", parameter="c")
     if not (np.isfinite(p) and p >= 1):
-        raise ValueError(f"order p must be a number >= 1, got {p!r}")
+        raise ParameterError(f"order p must be a number >= 1, got {p!r}", parameter="p")
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -187,7 +189,7 @@ class TGospaResult:
         may be carried on there at no cost.
     lower, windows
         When the LP was solved in time windows (see
-        :func:`harbourwatch.tgospa_windows.trajectory_gospa_windowed`):
+        :func:`harbourwatch.scoring.windows.trajectory_gospa_windowed`):
         a lower bound of the metric and the number of windows; ``value`` is
         then the cost of a feasible assignment, an upper bound. Solved whole:
         ``lower == value`` and ``windows == 1``.
@@ -220,7 +222,7 @@ class TGospaResult:
 def _as_traj(a: ArrayLike, name: str) -> Array:
     arr = np.asarray(a, dtype=float)
     if arr.ndim != 3 or arr.shape[-1] < 1:
-        raise ValueError(f"{name} must have shape (n, T, d), got {arr.shape}")
+        raise ParameterError(f"must have shape (n, T, d), got {arr.shape}", parameter=name)
     return arr
 
 
@@ -298,7 +300,7 @@ def _solve_component(
     b_eq = np.concatenate([np.ones(n_rows), np.zeros(n_h)])
     res = linprog(cost, A_eq=A_eq, b_eq=b_eq, bounds=(0, None), method="highs")
     if res.status != 0:  # pragma: no cover - the LP is always feasible and bounded
-        raise RuntimeError(f"trajectory GOSPA LP failed: {res.message}")
+        raise ComputationError(f"trajectory GOSPA LP failed: {res.message}")
     w = np.clip(res.x[:n_w], 0.0, 1.0).reshape(L, s)
     w = np.where(np.abs(w - np.round(w)) < _SNAP, np.round(w), w)
     return w, n_var
@@ -344,15 +346,15 @@ def trajectory_gospa(
     """
     _check_params(c, p)
     if not (np.isfinite(gamma) and gamma > 0):
-        raise ValueError(f"switching cost gamma must be a positive number, got {gamma!r}")
+        raise ParameterError(f"switching cost gamma must be a positive number, got {gamma!r}", parameter="gamma")
     Xa = _as_traj(X, "X")
     Ya = _as_traj(Y, "Y")
     nx, T = Xa.shape[:2]
     ny = Ya.shape[0]
     if Ya.shape[1] != T:
-        raise ValueError(f"X and Y must share the time grid: T = {T} and {Ya.shape[1]}")
+        raise ParameterError(f"X and Y must share the time grid: T = {T} and {Ya.shape[1]}", parameter="Y")
     if Ya.shape[2] != Xa.shape[2]:
-        raise ValueError("X and Y must have the same state dimension")
+        raise ParameterError("X and Y must have the same state dimension", parameter="Y")
     ex = np.asarray(~np.isnan(Xa).any(axis=-1), dtype=bool)       # (nx, T)
     ey = np.asarray(~np.isnan(Ya).any(axis=-1), dtype=bool)       # (ny, T)
     half = c**p / 2.0
@@ -471,7 +473,7 @@ def grid_trajectories(
         if len(t) == 0:
             continue
         if np.any(np.diff(t) <= 0):
-            raise ValueError("trajectory times must be strictly increasing")
+            raise ParameterError("trajectory times must be strictly increasing", parameter="times")
         lo = np.searchsorted(g, t[0], side="left")
         hi = np.searchsorted(g, t[-1], side="right")
         if hi <= lo:

@@ -20,15 +20,9 @@ __all__ = [
     "ZoneConfig",
     "RuleConfig",
     "FilterSettings",
-    "KNOT_M_S",
     "ParamSpec",
     "RuleSchema",
 ]
-
-#: One international knot in metres per second (1852 m per hour; BIPM SI
-#: brochure, table 8, non-SI units).
-KNOT_M_S = 1852.0 / 3600.0
-
 
 @dataclass(frozen=True, kw_only=True)
 class SensorConfig:
@@ -67,6 +61,11 @@ class ZoneConfig:
     name: str
     kind: str
     geometry: BaseGeometry
+
+    @property
+    def kind_key(self) -> str:
+        """The kind as compared everywhere (``land``, ``entrance`` ...): trimmed, lower case."""
+        return self.kind.strip().lower()
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -114,6 +113,10 @@ class FilterSettings:
         probability over ``dt`` is ``exp(-dt / mean_lifetime_s)``.
     arrivals_per_hour
         Expected number of new vessels per hour over all covers together.
+    entrance_arrivals_per_hour
+        Extra arrivals per hour spread over the zones of kind ``entrance``
+        (harbour mouths, where vessels appear), on top of ``arrivals_per_hour``;
+        0 (the default) treats every place in cover alike.
     initial_vessels
         Expected number of vessels already present when the feed starts.
     birth_speed_sd_m_s
@@ -152,6 +155,7 @@ class FilterSettings:
     manoeuvre_duration_s: float = 60.0
     mean_lifetime_s: float = 4 * 3600.0
     arrivals_per_hour: float = 20.0
+    entrance_arrivals_per_hour: float = 0.0
     initial_vessels: float = 20.0
     birth_speed_sd_m_s: float = 5.0
     gate_probability: float = 0.9999
@@ -186,10 +190,3 @@ class RuleSchema:
     params: tuple[ParamSpec, ...]
     zone_required: bool = True
     description: str = ""
-
-
-# --- parsing -----------------------------------------------------------------------------
-# The loaders live in private modules (kept small); they are re-exported here.
-from ._configparse import load_rules, load_sensors, load_zones  # noqa: E402
-
-__all__ += ["load_sensors", "load_zones", "load_rules"]

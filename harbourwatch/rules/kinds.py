@@ -29,10 +29,11 @@ from typing import Any, ClassVar
 import numpy as np
 from numpy.typing import NDArray
 
-from .config import KNOT_M_S, ParamSpec, RuleConfig, RuleSchema, ZoneConfig
-from .errors import InputError
-from .timefmt import format_clock
-from .zones import LocalZone
+from harbourwatch.errors import InputError
+from harbourwatch.io.records import ParamSpec, RuleConfig, RuleSchema, ZoneConfig
+from harbourwatch.io.timefmt import format_clock
+from harbourwatch.scene.zones import LocalZone
+from harbourwatch.units import KNOT_M_S, fmt_duration
 
 __all__ = [
     "GAP_TOLERANCE_S",
@@ -155,11 +156,6 @@ class EpisodeView:
     i0: int
     i1: int
     probability: float
-
-
-def fmt_duration(seconds: float) -> str:
-    """``"24 min"`` from one minute on, else ``"45 s"``."""
-    return f"{seconds / 60.0:.0f} min" if seconds >= 59.5 else f"{seconds:.0f} s"
 
 
 def fmt_span(t0: float, t1: float) -> str:

@@ -10,7 +10,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.linalg import cho_factor, cho_solve
 
-from ..models import H, cv_transition_batch
+from harbourwatch.models.cv import H, cv_transition_batch
 
 __all__ = [
     "LOG_2PI",
