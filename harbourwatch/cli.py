@@ -45,6 +45,9 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--flag-alerts", action="store_true",
                    help=f"exit with status {EXIT_ALERTS} when any alert is raised")
     r.add_argument("--quiet", action="store_true", help="no progress bar")
+    r.add_argument("--allow-gaps", action="store_true",
+                   help="accept a feed in which every radar is silent for more than 6 h "
+                        "(each gap is named in a warning); refused otherwise")
 
     s = sub.add_parser("score", help="accuracy of tracks against ground truth (GOSPA, trajectory GOSPA)")
     s.add_argument("tracks", metavar="TRACKS.csv")
@@ -80,7 +83,7 @@ def _cmd_run(a: argparse.Namespace) -> int:
 
     summary = run_review(
         a.feeds, sensors=a.sensors, zones=a.zones, rules=a.rules, out=a.out,
-        seed=a.seed, tile_url=a.tiles, progress=not a.quiet,
+        seed=a.seed, tile_url=a.tiles, progress=not a.quiet, allow_gaps=a.allow_gaps,
     )
     print(summary.as_text())
     if a.flag_alerts and summary.alerts:

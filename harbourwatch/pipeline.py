@@ -58,6 +58,7 @@ class RunSummary:
     alerts: tuple[Alert, ...] = ()
     alerts_text: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
+    warnings: tuple[str, ...] = field(default_factory=tuple)
 
     @property
     def clutter_share(self) -> float:
@@ -77,6 +78,7 @@ class RunSummary:
             f"outputs         {self.out_dir}",
         ]
         lines += [f"note            {n}" for n in self.notes]
+        lines += [f"warning         {w}" for w in self.warnings]
         lines += ["", self.alerts_text or "no alerts", "", CAUTION]
         return "\n".join(lines)
 
@@ -132,17 +134,22 @@ def _provenance(
     alerts: Sequence[Alert],
     fout: FilterOutput,
     timings: dict[str, float],
+    warnings: Sequence[str] = (),
 ) -> dict[str, Any]:
     """run.json's content: software, inputs with checksums, parameters, results, timings."""
     plots_used = int(sum(int(np.count_nonzero(tr.plot_ids >= 0)) for tr in tset))
+
+    def digest(p: PathArg) -> str:  # taken while reading: inputs are read once (FIFOs work)
+        return inp.checksums.get(str(p)) or sha256_file(p)
+
     return {
         "software": _versions(),
         "caution": CAUTION,
         "inputs": {
-            "feeds": [{"path": str(p), "sha256": sha256_file(p)} for p in feeds],
-            "sensors": {"path": str(sensors), "sha256": sha256_file(sensors)},
-            "zones": {"path": str(zones), "sha256": sha256_file(zones)},
-            "rules": {"path": str(rules), "sha256": sha256_file(rules)},
+            "feeds": [{"path": str(p), "sha256": digest(p)} for p in feeds],
+            "sensors": {"path": str(sensors), "sha256": digest(sensors)},
+            "zones": {"path": str(zones), "sha256": digest(zones)},
+            "rules": {"path": str(rules), "sha256": digest(rules)},
         },
         "parameters": {
             "filter": asdict(settings),
@@ -172,6 +179,7 @@ def _provenance(
         },
         "filter_stats": _jsonable(fout.stats),
         "filter_log": list(fout.log),
+        "warnings": list(warnings),
         "timings": timings,
     }
 
@@ -200,6 +208,7 @@ def run_review(
     tile_url: str | None = None,
     progress: bool = True,
     screenshots: bool = False,
+    allow_gaps: bool = False,
 ) -> RunSummary:
     """Review plot feeds end to end and write every output into ``out``.
 
@@ -222,6 +231,10 @@ def run_review(
     screenshots
         Also save PNG screenshots of the reports under ``out/screenshots``
         (needs a local Chromium; skipped with a note otherwise).
+    allow_gaps
+        Accept a feed in which every radar is silent for longer than
+        :data:`~harbourwatch.io.gaps.MAX_GAP_S` (each gap becomes a warning);
+        refused otherwise, naming the plot on the smaller side of the gap.
 
     Raises
     ------
@@ -240,8 +253,10 @@ def run_review(
     settings = settings or FilterSettings()
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
-    inp = load_inputs(feeds, sensors=sensors, zones=zones, rules=rules, rule_schemas=RULE_SCHEMAS)
+    inp = load_inputs(feeds, sensors=sensors, zones=zones, rules=rules, rule_schemas=RULE_SCHEMAS,
+                      allow_gaps=allow_gaps)
     timings["read_inputs_s"] = time.perf_counter() - t0
+    warnings: list[str] = list(inp.warnings)
 
     t = time.perf_counter()
     scene = into_local_frame(inp, settings)
@@ -274,6 +289,7 @@ def run_review(
         provenance = _provenance(
             inp, feeds, sensors=sensors, zones=zones, rules=rules, settings=settings, seed=seed,
             tile_url=tile_url, frame=frame, tset=tset, alerts=alerts, fout=fout, timings=timings,
+            warnings=warnings,
         )
         t = time.perf_counter()
         write_reports(
@@ -316,6 +332,7 @@ def run_review(
         alerts=tuple(alerts),
         alerts_text=alerts_table(alerts),
         notes=tuple(notes),
+        warnings=tuple(warnings),
     )
 
 
