@@ -260,6 +260,7 @@ def run_review(
 
     t = time.perf_counter()
     scene = into_local_frame(inp, settings)
+    warnings.extend(scene.warnings)
     frame = scene.frame
     fout = run_filter(
         scene.scans, scene.sensors, settings,

@@ -128,10 +128,10 @@ def _gunzip(blocks: Iterator[bytes], path: str | PathLike[str], limit: int) -> I
 class _TextCheck:
     """Streaming checks that the content is UTF-8 text with line breaks and no NUL."""
 
-    def __init__(self, path: str | PathLike[str]) -> None:
+    def __init__(self, path: str | PathLike[str], *, lines: bool) -> None:
         self.path = path
         self.seen = 0
-        self.newline_seen = False
+        self.newline_seen = not lines  # only files of lines need a line break early
         self.decoder = codecs.getincrementaldecoder("utf-8")()
         self.parts: list[bytes] = []
 
@@ -186,7 +186,8 @@ def read_input(path: str | PathLike[str], *, limit: int, formats: str = "text") 
     ------
     InputError
         Unreadable file, too large, a NUL byte, no line break in the first
-        MiB, not UTF-8, broken gzip data. The text checks run on each block
+        MiB (feeds only: a GeoJSON file may be one line), not UTF-8, broken
+        gzip data. The text checks run on each block
         as it arrives, so a binary file is refused after its first block.
     """
     digest = hashlib.sha256()
@@ -221,7 +222,7 @@ def _read_blocks(path: str | PathLike[str], blocks: Iterator[bytes], limit: int,
             parts.append(block)
         return b"".join(parts), kind
     content = _gunzip(stored(), path, limit) if kind == "gzip" else stored()
-    check = _TextCheck(path)
+    check = _TextCheck(path, lines=formats == "feed")
     for block in content:
         if check.seen + len(block) > limit:
             raise InputError(f"larger than {limit >> 20} MiB; split it into several files"

@@ -171,7 +171,8 @@ def load_zones(path: str | PathLike[str], *,
         if not shape.is_valid:
             raise f.error("geometry", f"invalid polygon: {explain_validity(shape)}")
         out.append(ZoneConfig(id=fid, name=_optional_string(f, props, "name", fid),
-                              kind=_optional_string(f, props, "kind", ""), geometry=shape))
+                              kind=_optional_string(f, props, "kind", ""), geometry=shape,
+                              source=str(path), line=f.line))
     return tuple(out)
 
 
