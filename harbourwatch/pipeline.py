@@ -27,6 +27,7 @@ from harbourwatch.io.records import FilterSettings
 from harbourwatch.io.timefmt import format_utc_one
 from harbourwatch.rules.evaluate import Alert
 from harbourwatch.scene.build import into_local_frame
+from harbourwatch.scene.checks import clutter_warnings
 from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.trajectories import (
     TrajectorySet,
@@ -274,6 +275,13 @@ def run_review(
         trajectories=tuple(fout.trajectories), frame=frame, as_seen=fout.as_seen,
         feed_start=feed_start, feed_end=feed_end,
     )
+
+    used = np.zeros(len(inp.plots), bool)
+    for tr in tset:
+        ids = tr.plot_ids[tr.plot_ids >= 0]
+        used[ids] = True
+    scans_per_sensor = np.bincount([sc.sensor for sc in inp.scans], minlength=len(inp.sensors))
+    warnings.extend(clutter_warnings(inp.plots, inp.sensors, scans_per_sensor.tolist(), used))
 
     out_dir = Path(out)
     out_dir.mkdir(parents=True, exist_ok=True)

@@ -21,6 +21,7 @@ from harbourwatch.io.feeds import PlotTable, Scan
 from harbourwatch.io.inputs import RunInputs
 from harbourwatch.io.records import FilterSettings, SensorConfig
 from harbourwatch.models.cv import converted_covariance
+from harbourwatch.scene.checks import input_warnings
 from harbourwatch.scene.extent import Covers, check_frame_extent
 from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.scene.records import BirthRegion, MeasurementScan, SensorModel
@@ -156,7 +157,7 @@ def into_local_frame(inputs: RunInputs, settings: FilterSettings | None = None) 
     scans, xy = measurement_scans(inputs.plots, inputs.scans, models, inputs.sensors, frame)
     check_frame_extent(inputs.plots, inputs.sensors, frame, xy[:, 0], xy[:, 1],
                        sensors_path=inputs.sensors_path or None)
-    warnings: list[str] = []
+    warnings = input_warnings(inputs.plots, inputs.sensors, models, xy)
     zones = local_zones(inputs.zones, frame, Covers.of(inputs.sensors, frame), warnings)
     return LocalScene(
         frame=frame,
