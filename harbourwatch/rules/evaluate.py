@@ -66,7 +66,6 @@ from harbourwatch.rules.kinds import (
     find_episodes,
     position_sd_bound,
     register_kind,
-    validate_rules,
 )
 from harbourwatch.scene.zones import LocalZone, local_zones
 from harbourwatch.trajectories import Trajectory, TrajectorySet
@@ -85,7 +84,6 @@ __all__ = [
     "evaluate_rules",
     "register_kind",
     "sample_window",
-    "validate_rules",
     "write_alerts_csv",
 ]
 
