@@ -241,7 +241,8 @@ def test_allow_gaps_runs_and_warns(calder, capsys):
     assert "line 2, field 'time'" in capsys.readouterr().err
     assert main([*argv, "--allow-gaps"]) == 0
     text = capsys.readouterr().out
-    warnings = json.loads((out / "run.json").read_text())["warnings"]
+    warnings = [w for w in json.loads((out / "run.json").read_text())["warnings"]
+                if w.startswith("feed gap")]  # (this tiny feed also has far less clutter)
     # 1970-01-01 to 2026-05-04T06:00Z: 1777874400 s (Python's calendar.timegm) = 56.3 years
     assert len(warnings) == 1 and "feed gap of 56.3 years" in warnings[0]
     assert f"line 2 of {calder.feed}" in warnings[0] and warnings[0] in text
