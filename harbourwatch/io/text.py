@@ -131,6 +131,7 @@ class _TextCheck:
     def __init__(self, path: str | PathLike[str], *, lines: bool) -> None:
         self.path = path
         self.seen = 0
+        self.lines = lines
         self.newline_seen = not lines  # only files of lines need a line break early
         self.decoder = codecs.getincrementaldecoder("utf-8")()
         self.parts: list[bytes] = []
@@ -140,6 +141,19 @@ class _TextCheck:
         breaks = head.count(b"\n")
         return (breaks if breaks else head.count(b"\r")) + 1
 
+    def _field_at(self, offset: int) -> str | None:
+        """The header's name for the column at ``offset`` (CSV files of lines only)."""
+        if not self.lines:
+            return None
+        head = b"".join(self.parts)
+        sep = b"\n" if b"\n" in head else b"\r"
+        start = head.rfind(sep, 0, offset) + 1
+        if start == 0:
+            return None  # in the header itself
+        header = head[: head.find(sep)].rstrip(b"\r").split(b",")
+        col = head[start:offset].count(b",")
+        return header[col].decode("utf-8", "replace").strip() if col < len(header) else None
+
     def feed(self, block: bytes) -> None:
         start = self.seen
         self.parts.append(block)
@@ -147,7 +161,8 @@ class _TextCheck:
         nul = block.find(b"\0")
         if nul >= 0:
             raise InputError(f"NUL byte at byte {start + nul + 1}: this is not a text file "
-                             "(binary data?)", file=self.path, line=self._line_at(start + nul))
+                             "(binary data?)", file=self.path, line=self._line_at(start + nul),
+                             field=self._field_at(start + nul))
         if not self.newline_seen:
             self.newline_seen = b"\n" in block or b"\r" in block
             if not self.newline_seen and self.seen >= _MIB:
@@ -158,8 +173,9 @@ class _TextCheck:
         try:
             self.decoder.decode(block)
         except UnicodeDecodeError as exc:
-            raise InputError("not valid UTF-8 text", file=self.path,
-                             line=self._line_at(start + max(exc.start, 0))) from None
+            at = start + max(exc.start, 0)
+            raise InputError("not valid UTF-8 text", file=self.path, line=self._line_at(at),
+                             field=self._field_at(at)) from None
 
     def finish(self) -> None:
         try:
