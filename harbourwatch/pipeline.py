@@ -270,7 +270,7 @@ def run_review(
         t = time.perf_counter()
         alerts = evaluate_rules(tset, scene.zones, inp.rules, seed=seed)
         timings["rules_s"] = time.perf_counter() - t
-        write_alerts_csv(alerts, out_dir / "alerts.csv")
+        write_alerts_csv(alerts, out_dir / "alerts.csv", trajectories=tset)
         provenance = _provenance(
             inp, feeds, sensors=sensors, zones=zones, rules=rules, settings=settings, seed=seed,
             tile_url=tile_url, frame=frame, tset=tset, alerts=alerts, fout=fout, timings=timings,
