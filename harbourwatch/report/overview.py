@@ -297,6 +297,7 @@ def overview_html(inputs: ReportInputs) -> str:
         payload = replay_payload(ts)
         payload["map"] = parts.name
         payload["tz"] = tz
+        payload["day"] = day
         replay = _replay_controls(ts.feed_start, ts.feed_end, tz)
         blocks = {"hw-replay-data": script_json(payload), "hw-page-data": script_json(page)}
         scripts = ("replay.js", "sort.js", "mapmarks.js")

@@ -73,6 +73,7 @@
   }
   window.hwPage = {
     fitFrame: fitFrame,
+    map: map,
     /* true when every point of cfg.episode lies inside the map's current view */
     episodeInView: function () {
       var view = map.getBounds();

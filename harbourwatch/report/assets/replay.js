@@ -89,9 +89,21 @@
     segs.push(seg);
     return segs;
   }
+  var local = null;
+  if (cfg.tz && window.Intl) {
+    try {
+      local = new Intl.DateTimeFormat("en-GB", { timeZone: cfg.tz, hour: "2-digit",
+        minute: "2-digit", second: "2-digit", hourCycle: "h23", timeZoneName: "short" });
+    } catch (err) { local = null; }
+  }
+  /* HH:MM:SS UTC (the date is in the page heading), local time in brackets with --display-tz */
   function fmt(s) {
-    var d = new Date((cfg.t0 + s) * 1000);
-    return d.toISOString().slice(0, 19).replace("T", " ") + " UTC";
+    var d = new Date(Math.floor(cfg.t0 + s) * 1000);
+    var text = d.toISOString().slice(11, 19) + " UTC";
+    var day = d.toISOString().slice(0, 10);
+    if (day !== cfg.day) { text = day + " " + text; }
+    if (local) { text += " (" + local.format(d) + ")"; }
+    return text;
   }
   var cur = parseFloat(slider.value);
   function update() {
