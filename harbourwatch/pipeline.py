@@ -200,6 +200,7 @@ def run_review(
     tile_url: str | None = None,
     progress: bool = True,
     screenshots: bool = False,
+    display_tz: str | None = None,
 ) -> RunSummary:
     """Review plot feeds end to end and write every output into ``out``.
 
@@ -219,6 +220,8 @@ def run_review(
         Optional tile server URL template for a basemap in the reports.
     progress
         Show a progress bar on a terminal.
+    display_tz
+        IANA time zone shown beside UTC on the pages (``None``: UTC only).
     screenshots
         Also save PNG screenshots of the reports under ``out/screenshots``
         (needs a local Chromium; skipped with a note otherwise).
@@ -230,6 +233,7 @@ def run_review(
     """
     from harbourwatch.io.inputs import load_inputs
     from harbourwatch.report import ReportInputs, write_reports
+    from harbourwatch.report._fmt import display_zone
     from harbourwatch.rules.evaluate import (
         RULE_SCHEMAS,
         alerts_table,
@@ -237,6 +241,7 @@ def run_review(
         write_alerts_csv,
     )
 
+    display_zone(display_tz)  # an unknown zone fails here, before any work
     settings = settings or FilterSettings()
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
@@ -275,13 +280,14 @@ def run_review(
             inp, feeds, sensors=sensors, zones=zones, rules=rules, settings=settings, seed=seed,
             tile_url=tile_url, frame=frame, tset=tset, alerts=alerts, fout=fout, timings=timings,
         )
+        provenance["parameters"]["display_tz"] = display_tz
         t = time.perf_counter()
         write_reports(
             out_dir,
             ReportInputs(
                 trajectories=tset, plots=inp.plots, scans=inp.scans, sensors=inp.sensors,
                 zones=inp.zones, rules=inp.rules, alerts=alerts, provenance=provenance,
-                tile_url=tile_url,
+                tile_url=tile_url, display_tz=display_tz,
             ),
         )
         timings["reports_s"] = time.perf_counter() - t
