@@ -190,7 +190,7 @@ def _sog_cog(frame: LocalFrame, mean: Array) -> tuple[Array, Array, Array, Array
     return lat, lon, sog, cog
 
 
-def _csv_text(header: tuple[str, ...], columns: list[Any], decimals: list[int | None]) -> str:  # type: ignore[type-arg]
+def _csv_text(header: tuple[str, ...], columns: list[Any], decimals: list[int | None]) -> str:
     """CSV text of numeric and string columns, numbers rounded to ``decimals``.
 
     Written by pyarrow's CSV writer (fast on a million rows): each number is
@@ -252,7 +252,7 @@ def as_seen_csv_text(tset: TrajectorySet) -> str:
     return _csv_text(AS_SEEN_COLUMNS, columns, [None, None, 7, 7, 2, 1, 1, 4])
 
 
-def trajectories_geojson(tset: TrajectorySet) -> dict:  # type: ignore[type-arg]
+def trajectories_geojson(tset: TrajectorySet) -> dict[str, Any]:
     """All trajectories as an RFC 7946 FeatureCollection of LineStrings (WGS84)."""
     from harbourwatch.io.timefmt import format_utc_one
 
