@@ -236,7 +236,7 @@ def _add_ellipses(m: folium.Map, inc: _Incident) -> None:
         ).add_to(ell_fg)
         centre = ring[:-1].mean(axis=0)
         folium.CircleMarker(
-            location=[round(float(centre[0]), 5), round(float(centre[1]), 5)], radius=9,
+            location=[round(float(centre[0]), 5), round(float(centre[1]), 5)], radius=15,
             color=PALETTE["blue"], weight=1.5, fill=False, dash_array="3 3",
             class_name="hw-ellipse-ring", interactive=False,
         ).add_to(ell_fg)
