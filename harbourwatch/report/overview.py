@@ -14,6 +14,7 @@ from harbourwatch.report._data import (
     GAP_SCAN_PERIODS,
     REPLAY_STEP_S,
     SIMPLIFY_TOLERANCE_M,
+    TRAIL_S,
     replay_payload,
     scan_series,
     state_index,
@@ -28,6 +29,7 @@ from harbourwatch.report._layers import add_track, add_zones, track_status, zone
 from harbourwatch.report._mapbase import SafePopup, new_map, render_parts, round5
 from harbourwatch.report._page import document, provenance_html
 from harbourwatch.report._style import PALETTE, SENSOR_COLOURS, TRACK_STYLE, zone_kinds
+from harbourwatch.report._vessels import vessel_rows, vessels_html, vessels_payload
 from harbourwatch.rules.evaluate import Alert
 from harbourwatch.trajectories import TrajectorySet
 from harbourwatch.units import fmt_duration
@@ -89,7 +91,7 @@ def _legend() -> str:
     items.append(
         '<span class="hw-key"><svg width="14" height="14" aria-hidden="true"><circle cx="7" '
         'cy="7" r="5" fill="#0072B2" stroke="#1b1b1b" stroke-width="1.5"/></svg>'
-        "replay: hindsight estimate</span>"
+        "replay: hindsight estimate (the small dot ahead of it shows the direction of travel)</span>"
     )
     items.append(
         '<span class="hw-key"><svg width="14" height="14" aria-hidden="true"><circle cx="7" '
@@ -112,13 +114,20 @@ def _replay_controls(t0: float, t1: float, tz: str | None) -> str:
         f'<option value="{v}"{" selected" if v == 60 else ""}>{v}\u00d7</option>'
         for v in (10, 30, 60, 120, 300, 600)
     )
+    trails = "".join(
+        f'<option value="{v}"{" selected" if v == TRAIL_S else ""}>{label}</option>'
+        for v, label in ((0, "none"), (60, "1 min"), (300, "5 min"), (900, "15 min"),
+                         (3600, "1 h"), (1e9, "whole track")))
     return (
         '<div class="hw-replay" role="group" aria-label="Shift replay">'
         '<button type="button" id="hw-play" aria-pressed="false">Play</button>'
-        f'<input type="range" id="hw-slider" min="0" max="{span}" step="1" value="0" '
+        f'<input type="range" id="hw-slider" min="0" max="{span}" step="1" value="{span}" '
         'aria-label="Replay time">'
         f'<output id="hw-clock" for="hw-slider">{esc(fmt_clock(t0, tz=tz))}</output>'
         f'<label>speed <select id="hw-speed">{speeds}</select></label>'
+        f'<label>trail <select id="hw-trail">{trails}</select></label>'
+        '<label><input type="checkbox" id="hw-upto" checked> only what had happened by then'
+        "</label>"
         '<span role="radiogroup" aria-label="Estimate shown">'
         '<label><input type="radio" name="hw-mode" value="hindsight" checked> hindsight</label> '
         '<label><input type="radio" name="hw-mode" value="as_seen"> as seen at the time</label>'
@@ -145,7 +154,9 @@ def _alerts_table(inputs: ReportInputs) -> str:
     for i, a in enumerate(inputs.alerts):
         link = f"incidents/{incident_name(i)}"
         cells = [
-            f'<td class="num" data-sort="{i + 1}"><a href="{esc(link)}">{i + 1}</a></td>',
+            f'<td class="num" data-sort="{i + 1}"><a href="{esc(link)}">{i + 1}</a> '
+            f'<button type="button" class="hw-goto hw-noprint" data-alert="{i}" '
+            f'title="show on the map and move the replay here">map</button></td>',
             f"<td>{esc(a.rule)}</td>",
             f"<td>{esc(a.kind)}</td>",
             f"<td>{esc(a.track)}</td>",
@@ -242,6 +253,19 @@ def _alert_markers(m: folium.Map, inputs: ReportInputs) -> None:
         mk.add_to(alerts_fg)
 
 
+def _live_alerts(inputs: ReportInputs) -> list[dict[str, object]]:
+    """The alerts as the replay draws them once they have started (strings set as text)."""
+    out: list[dict[str, object]] = []
+    for i, a in enumerate(inputs.alerts):
+        ll = alert_latlon(inputs.trajectories, a)
+        if ll is None:
+            continue
+        out.append({"s": round(a.start - inputs.trajectories.feed_start, 3),
+                    "lat": round(ll[0], 5), "lon": round(ll[1], 5), "rule": a.rule, "n": i + 1,
+                    "href": f"incidents/{incident_name(i)}"})
+    return out
+
+
 def _warnings(inputs: ReportInputs) -> str:
     """Warnings the run recorded in run.json (``warnings``: a list of lines), if any."""
     found = inputs.provenance.get("warnings") if inputs.provenance else None
@@ -284,6 +308,7 @@ def overview_html(inputs: ReportInputs) -> str:
                 "a header and no rows, so there is no shift to review, no trajectory and no "
                 "alert. The map shows the radars' zones only.</p>")
         replay, blocks, scripts = "", {"hw-page-data": script_json(page)}, ("mapmarks.js",)
+        vessels = ""
     else:
         day = fmt_day(ts.feed_start)
         span_txt = (f"{esc(fmt_clock(ts.feed_start, tz=tz))} to "
@@ -298,17 +323,27 @@ def overview_html(inputs: ReportInputs) -> str:
         payload["map"] = parts.name
         payload["tz"] = tz
         payload["day"] = day
+        payload["alerts"] = _live_alerts(inputs)
         replay = _replay_controls(ts.feed_start, ts.feed_end, tz)
-        blocks = {"hw-replay-data": script_json(payload), "hw-page-data": script_json(page)}
-        scripts = ("replay.js", "sort.js", "mapmarks.js")
-    nav = ('<p class="hw-sub hw-noprint"><a href="#alerts">alerts</a> \u00b7 '
+        vrows = vessel_rows(inputs, zone_visits(ts, inputs.zones))
+        vessels = ('<section class="hw-noprint"><h2 id="vessels">Vessels</h2>'
+                   f"{vessels_html(inputs, vrows)}</section>")
+        day0 = float(np.floor(ts.feed_start / 86400.0) * 86400.0) - ts.feed_start
+        vdata = {"rows": vessels_payload(vrows, ts.feed_start), "day0": day0,
+                 "alerts": [{"s": round(a.start - ts.feed_start, 3), "track": a.track}
+                            for a in inputs.alerts]}
+        blocks = {"hw-replay-data": script_json(payload), "hw-page-data": script_json(page),
+                  "hw-vessels-data": script_json(vdata)}
+        scripts = ("replay.js", "sort.js", "mapmarks.js", "vessels.js")
+    nav = ('<p class="hw-sub hw-noprint"><a href="#vessels">vessels</a> \u00b7 '
+           '<a href="#alerts">alerts</a> \u00b7 '
            '<a href="#traffic">traffic</a> \u00b7 <a href="#how-to-read">how to read this '
            'report</a> \u00b7 <a href="#provenance">provenance</a></p>')
     body = (
         f"{head}{nav}{_warnings(inputs)}"
         f"{parts.html}"
         f"{replay}"
-        f"{_legend()}"
+        f"{_legend()}{vessels}"
         f'<p class="hw-sub">Trajectories are smoothed estimates (using the whole shift), drawn '
         f"simplified to {SIMPLIFY_TOLERANCE_M:g} m; the replay is resampled to "
         f"{REPLAY_STEP_S:g} s and shows a trail of the last few minutes. \u201cAs seen at the "
