@@ -22,6 +22,8 @@ from harbourwatch.pipeline import demo_paths
 from harbourwatch.rules.output import ALERT_COLUMNS
 from harbourwatch.rules.positions import POSITION_COLUMNS
 
+pytestmark = pytest.mark.xdist_group("demo_run")  # the demo is reviewed once, on one worker
+
 GEOD = Geod(ellps="WGS84")
 #: tracks.csv and alerts.csv both round degrees to 7 decimals (about 1 cm): allow 5 cm.
 SAME_POINT_M = 0.05

@@ -20,6 +20,7 @@ from harbourwatch.report.screenshot import CHROMIUM, CHROMIUM_ARGS, block_networ
 
 pytestmark = [
     pytest.mark.browser,
+    pytest.mark.xdist_group("demo_run"),  # the demo is reviewed once, on one worker
     pytest.mark.skipif(not os.access(CHROMIUM, os.X_OK),
                        reason=f"no Chromium at {CHROMIUM} (apt-get install chromium)"),
 ]
