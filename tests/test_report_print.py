@@ -90,6 +90,8 @@ def test_each_incident_prints_on_one_a4_page_with_the_whole_episode(
         assert not page.locator(".leaflet-control-layers").is_visible()
         pdf = page.pdf(format="A4", print_background=True)
         assert pdf.startswith(b"%PDF") and pdf_pages(pdf) == 1, path.name
+        # nothing wider than the paper (it would be cut at the right edge)
+        assert page.evaluate("document.documentElement.scrollWidth") <= A4_INNER_PX[0] + 0.5
         assert problems == []
         ctx.close()
 
@@ -115,8 +117,14 @@ def test_scale_bar_is_in_nautical_miles_and_true(browser: sync_api.Browser, demo
 def test_overview_prints_as_map_page_then_alerts_table(browser: sync_api.Browser,
                                                        demo_run: Path) -> None:
     ctx, page, problems = _open(browser, demo_run / "report.html", 1280)
+    page.set_viewport_size({"width": int(A4_INNER_PX[0]), "height": int(A4_INNER_PX[1])})
     page.emulate_media(media="print")
     page.evaluate("hwPage.fitFrame()")
+    # the whole shift inside the printed map, nothing wider than the paper
+    assert page.evaluate("""() => {
+        const fit = JSON.parse(document.getElementById('hw-page-data').textContent).fit;
+        return hwPage.map.getBounds().contains(L.latLngBounds(fit)); }""")
+    assert page.evaluate("document.documentElement.scrollWidth") <= A4_INNER_PX[0] + 0.5
     for sel in (".hw-replay", "#traffic", "#provenance", ".leaflet-control-zoom"):
         assert not page.locator(sel).is_visible(), sel
     assert page.locator("#hw-alerts").is_visible() and page.locator(".hw-scale").is_visible()
