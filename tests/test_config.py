@@ -72,6 +72,9 @@ SENSOR_BAD_VALUES = [
     ("id", "7", "non-empty string"),
     ("id", '""', "non-empty string"),
     ("id", '"mole\\u001b[2Jhead"', "control character U+001B"),  # would clear a terminal
+    # bidirectional controls (Unicode Standard Annex #9, table 4 and section 2.6)
+    ("id", '"mole\\u202Edaeh"', "bidirectional control character U+202E"),
+    ("id", '"mole\\u2066head"', "bidirectional control character U+2066"),
 ]
 
 
@@ -230,6 +233,21 @@ def test_zone_id_with_a_control_character_is_refused(calder):
     assert err.field == "properties.id" and "U+0007" in err.message and err.line is not None
 
 
+@pytest.mark.parametrize("code", [*range(0x202A, 0x202F), *range(0x2066, 0x206A),
+                                  0x200E, 0x200F, 0x061C])
+@pytest.mark.parametrize("prop", ["id", "name"])
+def test_zone_id_or_name_with_a_bidirectional_control_is_refused(calder, code, prop):
+    # the explicit formatting characters and the implicit marks of Unicode Standard
+    # Annex #9 (table 4, section 2.6): an override would reverse the rest of a narrative
+    doc = _doc()
+    doc["features"][1]["properties"][prop] = f"inner{chr(code)}basin"
+    _write_zones(calder, doc)
+    err = _raises(load_zones, calder.zones)
+    assert err.field == f"properties.{prop}" and f"U+{code:04X}" in err.message
+    assert "bidirectional control character" in err.message
+    assert err.file == str(calder.zones) and err.line is not None
+
+
 def test_zone_missing_and_duplicate_id(calder):
     doc = _doc()
     del doc["features"][1]["properties"]["id"]
@@ -297,6 +315,10 @@ RULE_CASES = [
     ('id = "range-crossing"\n', "", "id", "missing", False),
     ('kind = "pass-through"', "kind = 3", "kind", "non-empty string", False),
     ('id = "range-crossing"', 'id = "range\\rcrossing"', "id", "control character U+000D", False),
+    ('id = "range-crossing"', 'id = "range\\u202Egnissorc"', "id",
+     "bidirectional control character U+202E", False),
+    ('id = "range-crossing"', 'id = "range\\u200Fcrossing"', "id",
+     "bidirectional control character U+200F", False),
     ("min_probability = 0.7", "min_probability = 1.5", "min_probability", "from 0 to 1", False),
     ("min_probability = 0.7", "min_probability = false", "min_probability", "found false", False),
 ]
