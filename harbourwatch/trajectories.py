@@ -124,7 +124,8 @@ class AsSeenTable:
 
     One row per (scan, trajectory): the filtered state of each Bernoulli of
     the best global hypothesis whose existence is above the threshold and
-    whose most likely end is the current scan. Never used by the rules.
+    whose most likely end is the current scan; rows sorted by (time, track).
+    Never used by the rules.
     """
 
     time: Array  # (N,) scan reference time, epoch s
