@@ -64,6 +64,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     d = sub.add_parser("demo", help="the bundled scenario, end to end")
     d.add_argument("--out", default="demo_out", metavar="DIR")
+    d.add_argument("--quiet", action="store_true", help="no progress bars")
 
     m = sub.add_parser("simulate", help="write an invented scenario with ground truth")
     m.add_argument("--scenario", default="demo", help="scenario name (see --list)")
@@ -108,7 +109,7 @@ def _cmd_score(a: argparse.Namespace) -> int:
 def _cmd_demo(a: argparse.Namespace) -> int:
     from harbourwatch.pipeline import run_demo
 
-    summary = run_demo(a.out)
+    summary = run_demo(a.out, progress=not a.quiet)
     print(summary.as_text())
     print(f"\nOpen the shift overview: {Path(a.out, 'report.html').resolve()}")
     return EXIT_OK

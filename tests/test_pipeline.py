@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import io
 import json
 import subprocess
 import sys
@@ -155,3 +156,36 @@ def test_outputs_do_not_depend_on_the_order_or_split_of_the_feed_rows(
         keys = [(r["time"], r["track"]) for r in csv.DictReader(fh)]
     assert keys == sorted(keys) and len(keys) > 100
     assert len(set(keys)) < len(keys) or len({k[0] for k in keys}) < len(keys)  # times shared
+
+
+class _Terminal(io.StringIO):
+    """Standard error as a terminal would be (for the progress bars)."""
+
+    def isatty(self) -> bool:
+        return True
+
+
+def test_progress_covers_every_stage_with_rate_and_time_left(scenario, tmp_path, monkeypatch,
+                                                              capsys) -> None:
+    import re
+
+    term = _Terminal()
+    monkeypatch.setattr(sys, "stderr", term)
+    args = ["run", str(scenario["feed"]), "--sensors", str(scenario["sensors"]),
+            "--zones", str(scenario["zones"]), "--rules", str(scenario["rules"])]
+    assert main([*args, "--out", str(tmp_path / "a")]) == 0
+    shown = term.getvalue()
+    for stage, unit in (("tracking", "scan"), ("tables", "row"), ("rules", "rule"),
+                        ("reports", "page")):
+        # tqdm's line: "stage : 100%|####| n/n [elapsed<left, rate unit/s]"
+        line = re.search(rf"{stage}\s*: 100%\|[^|]*\| *[\d.]+k?/[\d.]+k? "
+                         rf"\[\d\d:\d\d<\d\d:\d\d, *[\d.]+k?{unit}/s\]", shown)
+        assert line is not None, (stage, shown[-600:])
+    # quiet with --quiet, and when standard error is not a terminal
+    term.seek(0)
+    term.truncate()
+    assert main([*args, "--out", str(tmp_path / "b"), "--quiet"]) == 0
+    assert term.getvalue() == ""
+    monkeypatch.setattr(sys, "stderr", io.StringIO())
+    assert main([*args, "--out", str(tmp_path / "c")]) == 0
+    assert sys.stderr.getvalue() == ""
