@@ -90,12 +90,14 @@ def _cmd_run(a: argparse.Namespace) -> int:
 
 
 def _cmd_score(a: argparse.Namespace) -> int:
-    from harbourwatch.scoring.score import score_files, write_score_plot
+    from harbourwatch.scoring.plot import write_score_plot
+    from harbourwatch.scoring.score import score_files
 
     report = score_files(
         a.tracks, a.truth, cutoff_m=a.cutoff_m, order=a.order,
         switch_cost_m=a.switch_cost_m, grid_s=a.grid_s, max_gap_s=a.max_gap_s,
         tgospa_window_s=60.0 * a.tgospa_window_min,
+        notice=lambda line: print(f"harbourwatch: note: {line}", file=sys.stderr, flush=True),
     )
     if a.plot:
         write_score_plot(report, a.plot)
