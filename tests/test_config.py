@@ -57,7 +57,8 @@ SENSOR_BAD_VALUES = [
     # (key, bad TOML value, words the message must hold)
     ("lat", "91.0", "from -90 to 90"),
     ("lat", "-90.5", "from -90 to 90"),
-    ("lat", '"54.3"', "found '54.3'"),
+    ("lat", '"54.3"', "found '54.3' (text, not a number: remove the quotes)"),
+    ("max_range_m", '"22000"', "remove the quotes"),
     ("lon", "180.01", "from -180 to 180"),
     ("scan_period_s", "0", "positive"),
     ("scan_period_s", "true", "found true"),
@@ -260,7 +261,10 @@ def test_zone_missing_and_duplicate_id(calder):
     text = _write_zones(calder, doc)
     err = _raises(load_zones, calder.zones)
     assert err.field == "properties.id" and "duplicate" in err.message
-    assert err.line == line_of(text, '"id": "inner-basin"')  # best effort: first occurrence
+    # the duplicate's own line, and the first one's in the message
+    assert err.line == line_of(text, '"id": "inner-basin"', nth=2)
+    first = line_of(text, '"id": "inner-basin"')
+    assert err.line != first and f"first at line {first}" in err.message
 
 
 def test_zone_missing_file(tmp_path):
@@ -309,6 +313,7 @@ RULE_CASES = [
     ("max_distance_m = 150", "max_distance_m = 0.5", "max_distance_m", "at least 1", True),
     ("max_speed_kn = 1.5", "max_speed_kn = true", "max_speed_kn", "found true", False),
     ("max_speed_kn = 1.5", 'max_speed_kn = "fast"', "max_speed_kn", "found 'fast'", False),
+    ("max_speed_kn = 1.5", 'max_speed_kn = "1.5"', "max_speed_kn", "remove the quotes", False),
     ('zone = "inner-basin"', 'zone = "inner-basn"', "zone",
      "valid zone ids: inner-basin, firing-range, outer-roads", False),
     ('id = "range-crossing"', 'id = "basin-loiter"', "id", "duplicate", False),

@@ -60,7 +60,7 @@ from harbourwatch.scoring.figures import engineer_figures
 from harbourwatch.scoring.metrics import TGospaResult, gospa, grid_trajectories, trajectory_gospa
 from harbourwatch.scoring.reading import ScoreTable, group_by_track, read_score_csv
 from harbourwatch.scoring.windows import trajectory_gospa_windowed
-from harbourwatch.units import fmt_duration
+from harbourwatch.units import CAUTION, fmt_duration
 
 __all__ = ["ScoreReport", "score_files", "mean_gospa_files", "estimate_tgospa_seconds"]
 
@@ -180,6 +180,7 @@ class ScoreReport:
                 lines.append(f"  {tid[:20]:<20s} {f(v['minutes']):>7s} "
                              f"{f(v['matched_minutes']):>8s} {f(v['mean_error_m']):>7s} "
                              f"{v['breaks']:>6d} {v['swaps']:>5d}")
+        lines += ["", CAUTION]
         return "\n".join(lines)
 
 
