@@ -192,7 +192,7 @@ def _sog_cog(frame: LocalFrame, mean: Array) -> tuple[Array, Array, Array, Array
     return lat, lon, sog, cog
 
 
-def _csv_text(header: tuple[str, ...], columns: list[Any], decimals: list[int | None]) -> str:  # type: ignore[type-arg]
+def _csv_text(header: tuple[str, ...], columns: list[Any], decimals: list[int | None]) -> str:
     """CSV text of numeric and string columns, numbers rounded to ``decimals``.
 
     Written by pyarrow's CSV writer (fast on a million rows): each number is
@@ -291,7 +291,7 @@ def cut_at_antimeridian(lon: list[float], lat: list[float]) -> list[list[list[fl
     return [q for q in parts if len(q) > 1]
 
 
-def trajectories_geojson(tset: TrajectorySet) -> dict:  # type: ignore[type-arg]
+def trajectories_geojson(tset: TrajectorySet) -> dict[str, Any]:
     """All trajectories as an RFC 7946 FeatureCollection of LineStrings (WGS84).
 
     A trajectory that crosses the antimeridian is a MultiLineString cut there

@@ -288,9 +288,9 @@ SCHEMAS = {
 }
 
 
-def test_rules_parse_with_and_without_schemas(calder):
+def test_rules_parse_with_given_and_registered_schemas(calder):
     zones = load_zones(calder.zones)
-    for schemas in (None, SCHEMAS):
+    for schemas in (None, SCHEMAS):  # None: the registered kinds
         loiter, crossing, meeting = load_rules(calder.rules, zones, schemas)
         assert (loiter.id, loiter.kind, loiter.zone) == ("basin-loiter", "loiter", "inner-basin")
         assert dict(loiter.params) == {"min_duration_min": 15, "max_speed_kn": 1.5}

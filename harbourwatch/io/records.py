@@ -22,6 +22,7 @@ __all__ = [
     "FilterSettings",
     "ParamSpec",
     "RuleSchema",
+    "RULE_SCHEMAS",
 ]
 
 @dataclass(frozen=True, kw_only=True)
@@ -190,3 +191,11 @@ class RuleSchema:
     params: tuple[ParamSpec, ...]
     zone_required: bool = True
     description: str = ""
+
+
+#: The schema of every known rule kind, by kind name: what the rules TOML
+#: accepts. Filled by :func:`harbourwatch.rules.kinds.register_kind` when the
+#: kinds are imported (importing any part of harbourwatch imports them), and
+#: read by :func:`harbourwatch.io.toml_files.load_rules`, the one place rules
+#: are validated.
+RULE_SCHEMAS: dict[str, RuleSchema] = {}

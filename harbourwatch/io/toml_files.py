@@ -17,7 +17,14 @@ from types import MappingProxyType
 from typing import Any
 
 from harbourwatch.errors import InputError
-from harbourwatch.io.records import ParamSpec, RuleConfig, RuleSchema, SensorConfig, ZoneConfig
+from harbourwatch.io.records import (
+    RULE_SCHEMAS,
+    ParamSpec,
+    RuleConfig,
+    RuleSchema,
+    SensorConfig,
+    ZoneConfig,
+)
 from harbourwatch.io.text import control_character, read_text
 
 __all__ = ["load_sensors", "load_rules"]
@@ -247,16 +254,18 @@ def load_rules(
     zones
         The run's zones; a rule's ``zone`` must be one of their ids.
     schemas
-        Rule kinds by name (from the rules module's registry). When given,
-        the kind must be one of them and every other key must be one of the
-        kind's parameters, within its bounds. When ``None``, any extra key
-        with a numeric value is kept as a parameter.
+        Rule kinds by name; by default every registered kind
+        (:data:`harbourwatch.io.records.RULE_SCHEMAS`). The kind must be one
+        of them and every other key one of the kind's parameters, within its
+        bounds: the one validation of a rule, done here at the edge.
 
     Raises
     ------
     InputError
         Naming the file, line and key of the first problem.
     """
+    if schemas is None:
+        schemas = RULE_SCHEMAS
     data, text = _read_toml(path)
     zone_ids = [z.id for z in zones]
     seen: dict[str, int | None] = {}
@@ -266,18 +275,16 @@ def load_rules(
         kind = e.string("kind")
         assert rid is not None and kind is not None
         _duplicate(e, "id", rid, seen, "rule id")
-        schema = None
-        if schemas is not None:
-            if kind not in schemas:
-                raise e.error("kind", f"unknown rule kind {kind!r}; valid kinds: "
-                                      f"{', '.join(sorted(schemas))}")
-            schema = schemas[kind]
-            _unknown_keys(e, (*_RULE_COMMON, *(p.name for p in schema.params)))
+        if kind not in schemas:
+            raise e.error("kind", f"unknown rule kind {kind!r}; valid kinds: "
+                                  f"{', '.join(sorted(schemas))}")
+        schema = schemas[kind]
+        _unknown_keys(e, (*_RULE_COMMON, *(p.name for p in schema.params)))
         zone = e.string("zone", required=False)
         if zone is not None and zone not in zone_ids:
             raise e.error("zone", f"unknown zone {zone!r}; valid zone ids: "
                                   f"{', '.join(zone_ids) or 'none'}")
-        if zone is None and schema is not None and schema.zone_required:
+        if zone is None and schema.zone_required:
             raise e.error("zone", f"missing required key: rule kind {kind!r} needs a zone")
         min_p = 0.5
         if "min_probability" in e.data:
@@ -292,13 +299,8 @@ def load_rules(
     return tuple(out)
 
 
-def _rule_params(e: _Entry, schema: RuleSchema | None) -> dict[str, Any]:
+def _rule_params(e: _Entry, schema: RuleSchema) -> dict[str, Any]:
     params: dict[str, Any] = {}
-    if schema is None:
-        for key, v in e.data.items():
-            if key not in _RULE_COMMON:
-                params[key] = e.check_number(key, v, lo=-math.inf, hi=math.inf)
-        return params
     spec: ParamSpec
     for spec in schema.params:
         if spec.name not in e.data:
