@@ -45,16 +45,15 @@ def test_score_help_says_what_plot_accepts(capsys):
     assert ".html" in text and ".svg" in text and ".png" not in text
 
 
-@pytest.mark.parametrize("args", [["simulate", "--list"], ["--version"]])
-def test_a_closed_pipe_ends_quietly(args):
-    # the reader goes away before anything is written (as `| head` does after its lines)
-    proc = subprocess.Popen([sys.executable, "-m", "harbourwatch", *args],
+def test_a_closed_pipe_ends_quietly():
+    # the reader goes away before anything is written (as `| head` does after its lines):
+    # before, Python reported "Exception ignored ... BrokenPipeError" and exit status 120
+    proc = subprocess.Popen([sys.executable, "-m", "harbourwatch", "simulate", "--list"],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE)
     proc.stdout.close()
     err = proc.stderr.read().decode()
-    status = proc.wait(timeout=120)
-    assert "Traceback" not in err and "Exception ignored" not in err and err == ""
-    assert status in (0, EXIT_PIPE)  # --version may be flushed by argparse itself
+    assert proc.wait(timeout=120) == EXIT_PIPE
+    assert err == ""
 
 
 def test_run_prints_the_report_path_and_the_caution(tmp_path: Path, capsys):
