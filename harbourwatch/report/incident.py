@@ -12,8 +12,14 @@ from harbourwatch.io.records import RuleConfig, ZoneConfig
 from harbourwatch.io.timefmt import format_clock, format_utc_one
 from harbourwatch.report import charts
 from harbourwatch.report._data import state_index, track_latlon
-from harbourwatch.report._html import esc, esc_tooltip, fmt_prob
-from harbourwatch.report._layers import add_track, add_zones, ellipse_latlon, zone_label
+from harbourwatch.report._html import esc, esc_isolating, esc_tooltip, esc_user, fmt_prob
+from harbourwatch.report._layers import (
+    add_track,
+    add_zones,
+    alert_strings,
+    ellipse_latlon,
+    zone_label,
+)
 from harbourwatch.report._mapbase import PointLayer, new_map, render_parts, round5
 from harbourwatch.report._page import document
 from harbourwatch.report._style import PALETTE
@@ -205,13 +211,15 @@ def incident_html(inputs: ReportInputs, index: int) -> str:
         ("probability", fmt_prob(a.probability)),
         ("summary", a.summary),
     ]
-    facts_html = "".join(f"<tr><td>{esc(k)}</td><td>{esc(v)}</td></tr>" for k, v in facts if v)
+    quoted = alert_strings(a, inputs.zones)
+    facts_html = "".join(f"<tr><td>{esc(k)}</td><td>{esc_isolating(v, quoted)}</td></tr>"
+                         for k, v in facts if v)
     body = (
         '<p class="hw-nav hw-noprint"><a href="../report.html">\u2190 shift overview</a></p>'
-        f"<h1>Alert {index + 1}: {esc(a.rule)}</h1>"
+        f"<h1>Alert {index + 1}: {esc_user(a.rule)}</h1>"
         f'<table class="hw-facts">{facts_html}</table>'
         "<h2>Narrative</h2>"
-        f'<p class="hw-narrative" id="hw-narrative">{esc(text)}</p>'
+        f'<p class="hw-narrative" id="hw-narrative">{esc_isolating(text, quoted)}</p>'
         "<h2>Map</h2>"
         f"{parts.html}"
         '<p class="hw-sub">Line: smoothed trajectory (dotted purple: the other vessel); white '

@@ -21,8 +21,22 @@ from harbourwatch.report._data import (
     vessels_present,
     zone_visits,
 )
-from harbourwatch.report._html import esc, esc_tooltip, fmt_prob, script_json
-from harbourwatch.report._layers import add_track, add_zones, track_status, zone_label
+from harbourwatch.report._html import (
+    esc,
+    esc_isolating,
+    esc_tooltip,
+    esc_user,
+    fmt_prob,
+    script_json,
+    tooltip_user,
+)
+from harbourwatch.report._layers import (
+    add_track,
+    add_zones,
+    alert_strings,
+    track_status,
+    zone_label,
+)
 from harbourwatch.report._mapbase import SafePopup, new_map, render_parts
 from harbourwatch.report._page import document, provenance_html
 from harbourwatch.report._style import PALETTE, SENSOR_COLOURS, TRACK_STYLE, zone_kinds
@@ -140,16 +154,16 @@ def _alerts_table(inputs: ReportInputs) -> str:
         link = f"incidents/{incident_name(i)}"
         cells = [
             f'<td class="num" data-sort="{i + 1}"><a href="{esc(link)}">{i + 1}</a></td>',
-            f"<td>{esc(a.rule)}</td>",
+            f"<td>{esc_user(a.rule)}</td>",
             f"<td>{esc(a.kind)}</td>",
             f"<td>{esc(a.track)}</td>",
             f"<td>{esc(a.other_track)}</td>",
-            f"<td>{esc(a.zone)}</td>",
+            f"<td>{esc_user(a.zone)}</td>",
             f'<td class="num" data-sort="{a.start:.3f}">{esc(format_utc_one(a.start))}</td>',
             f'<td class="num" data-sort="{a.end:.3f}">{esc(format_utc_one(a.end))}</td>',
             f'<td class="num" data-sort="{a.end - a.start:.3f}">{esc(fmt_duration(a.end - a.start))}</td>',
             f'<td class="num" data-sort="{a.probability:.6f}">{esc(fmt_prob(a.probability))}</td>',
-            f'<td><a href="{esc(link)}">{esc(a.summary)}</a></td>',
+            f'<td><a href="{esc(link)}">{esc_isolating(a.summary, alert_strings(a, inputs.zones))}</a></td>',
         ]
         rows.append("<tr>" + "".join(cells) + "</tr>")
     return (
@@ -229,7 +243,7 @@ def overview_html(inputs: ReportInputs) -> str:
         ll = alert_latlon(ts, a)
         if ll is None:
             continue
-        tip = (f"<b>{esc_tooltip(a.rule)}</b> ({esc_tooltip(a.kind)}), track "
+        tip = (f"<b>{tooltip_user(a.rule)}</b> ({esc_tooltip(a.kind)}), track "
                f"{esc_tooltip(a.track)}<br>{format_clock(a.start)}\u2013{format_clock(a.end)} UTC, "
                f"p = {fmt_prob(a.probability)}")
         mk = folium.CircleMarker(
@@ -238,7 +252,7 @@ def overview_html(inputs: ReportInputs) -> str:
             tooltip=folium.Tooltip(tip),
         )
         mk.add_child(SafePopup(
-            f'<b>{esc(a.rule)}</b><br>{esc(a.summary)}<br>'
+            f'<b>{esc_user(a.rule)}</b><br>{esc_isolating(a.summary, alert_strings(a, inputs.zones))}<br>'
             f'<a href="incidents/{incident_name(i)}">open incident page {i + 1}</a>'))
         mk.add_to(alerts_fg)
     folium.LayerControl(collapsed=False, position="topright").add_to(m)
