@@ -93,3 +93,14 @@ def test_header_only_feed_says_so(tmp_path: Path) -> None:
     assert all(frame.contains(z) for z in zones)
     run = json.loads((out / "run.json").read_text())
     assert run["parameters"]["display_tz"] == "Europe/Oslo"
+
+
+@given(st.text())
+def test_script_json_round_trips_and_hides_script_syntax(text: str) -> None:
+    from harbourwatch.report._html import script_json
+
+    # RFC 8259: a \u escape is the same character as itself in a JSON string
+    out = script_json({"name": text, "n": [1, 2]})
+    assert json.loads(out) == {"name": text, "n": [1, 2]}
+    assert not any(c in out for c in "<>&$`") and "\\\\" not in out
+    assert "{{" not in out and "{%" not in out and "{#" not in out

@@ -8,7 +8,7 @@ from typing import Any
 
 from harbourwatch.io.atomic import atomic_write_text
 from harbourwatch.report._assets import leaflet_css, leaflet_js, own_asset
-from harbourwatch.report._html import esc
+from harbourwatch.report._html import esc, esc_user
 from harbourwatch.report._mapbase import MapParts
 from harbourwatch.units import CAUTION
 
@@ -56,6 +56,8 @@ def document(*, title: str, body: str, parts: MapParts, scripts: Sequence[str] =
 def _scalar(v: Any) -> str:
     if isinstance(v, float):
         return esc(f"{v:.6g}")
+    if isinstance(v, str):  # file names, rule ids: user strings, isolated
+        return esc_user(v)
     return esc(v)
 
 

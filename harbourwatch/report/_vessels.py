@@ -18,14 +18,14 @@ import numpy as np
 
 from harbourwatch.report._data import ZoneVisits
 from harbourwatch.report._fmt import fmt_clock, fmt_day, fmt_distance
-from harbourwatch.report._html import esc
+from harbourwatch.report._html import esc, esc_user
 from harbourwatch.report._layers import track_status, zone_label
 from harbourwatch.units import KNOT_M_S, fmt_duration
 
 if TYPE_CHECKING:
     from harbourwatch.report import ReportInputs
 
-__all__ = ["VesselRow", "vessel_rows", "vessels_payload", "vessels_html"]
+__all__ = ["VesselRow", "vessel_rows", "vessels_payload", "vessels_html", "filter_choices"]
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -72,10 +72,10 @@ def vessels_payload(rows: Sequence[VesselRow], t0: float) -> list[dict[str, obje
              "status": r.status, "zones": list(r.zones), "rules": list(r.rules)} for r in rows]
 
 
-def _options(pairs: Sequence[tuple[str, str]], everything: str) -> str:
-    opts = [f'<option value="">{esc(everything)}</option>']
-    opts += [f'<option value="{esc(v)}">{esc(label)}</option>' for v, label in pairs]
-    return "".join(opts)
+def filter_choices(inputs: ReportInputs) -> dict[str, list[list[str]]]:
+    """``[value, label]`` of the zone and rule filters; ``vessels.js`` adds them as text."""
+    return {"zones": [[z.id, zone_label(z)] for z in inputs.zones if z.kind_key != "land"],
+            "rules": [[r.id, r.id] for r in inputs.rules]}
 
 
 def vessels_html(inputs: ReportInputs, rows: Sequence[VesselRow]) -> str:
@@ -85,7 +85,7 @@ def vessels_html(inputs: ReportInputs, rows: Sequence[VesselRow]) -> str:
     zones = {z.id: zone_label(z) for z in inputs.zones if z.kind_key != "land"}
     body = []
     for i, r in enumerate(rows):
-        zone_txt = ", ".join(zones.get(z, z) for z in r.zones) or "\u2014"
+        zone_txt = ", ".join(esc_user(zones.get(z, z)) for z in r.zones) or "\u2014"
         body.append(
             f'<tr data-i="{i}" tabindex="0" title="show on the map and move the replay here">'
             f"<td>{esc(r.id)}</td>"
@@ -96,7 +96,7 @@ def vessels_html(inputs: ReportInputs, rows: Sequence[VesselRow]) -> str:
             f'<td class="num" data-sort="{r.max_kn:.3f}">{r.max_kn:.1f}</td>'
             f'<td class="num" data-sort="{r.mean_kn:.3f}">{r.mean_kn:.1f}</td>'
             "<td>\u2014</td>"
-            f"<td>{esc(zone_txt)}</td>"
+            f"<td>{zone_txt}</td>"
             f'<td class="num" data-sort="{r.n_alerts}">{r.n_alerts}</td>'
             f"<td>{'present at end' if r.status == 'present' else 'departed'}</td></tr>"
         )
@@ -106,14 +106,14 @@ def vessels_html(inputs: ReportInputs, rows: Sequence[VesselRow]) -> str:
     num_cls = ' class="num"'
     head = "".join(f'<th scope="col"{num_cls if num else ""}><button type="button">'
                    f"{esc(c)}</button></th>" for c, num in heads)
-    rules = [(r.id, r.id) for r in inputs.rules]
     return (
         '<div class="hw-vfilters" role="search" aria-label="Filter the vessel list">'
         '<label>track <input type="search" id="hw-vsearch" size="8" placeholder="e.g. T24"></label>'
         '<label>from <input type="time" id="hw-vfrom" step="60"></label>'
         '<label>to <input type="time" id="hw-vto" step="60"></label>'
-        f'<label>zone <select id="hw-vzone">{_options(list(zones.items()), "any zone")}</select></label>'
-        f'<label>rule <select id="hw-vrule">{_options(rules, "any rule or none")}</select></label>'
+        '<label>zone <select id="hw-vzone"><option value="">any zone</option></select></label>'
+        '<label>rule <select id="hw-vrule"><option value="">any rule or none</option></select>'
+        "</label>"
         '<label>status <select id="hw-vstatus"><option value="">all</option>'
         '<option value="present">present at end</option><option value="departed">departed'
         "</option></select></label>"

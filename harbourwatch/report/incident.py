@@ -14,10 +14,19 @@ from harbourwatch.io.timefmt import format_clock, format_utc_one
 from harbourwatch.report import charts
 from harbourwatch.report._data import state_index, track_latlon
 from harbourwatch.report._fmt import fmt_clock, fmt_day, fmt_dm, fmt_sd2
-from harbourwatch.report._html import esc, esc_tooltip, fmt_prob, script_json
+from harbourwatch.report._html import (
+    esc,
+    esc_isolating,
+    esc_tooltip,
+    esc_user,
+    fmt_prob,
+    script_json,
+    tooltip_user,
+)
 from harbourwatch.report._layers import (
     add_track,
     add_zones,
+    alert_strings,
     ellipse_latlon,
     track_status,
     zone_label,
@@ -147,6 +156,7 @@ class _Incident:
     episode: tuple[np.ndarray, ...]  # lat/lon of each trajectory between start and end
     day: str
     tz: str | None
+    quoted: tuple[str, ...]  # the user strings the sentences quote (isolated in <bdi>)
 
 
 def _incident(inputs: ReportInputs, index: int) -> _Incident:
@@ -174,7 +184,7 @@ def _incident(inputs: ReportInputs, index: int) -> _Incident:
         trs=tuple(trs), window=_window(a, [tr for _, tr in trs]), ellipses=tuple(ell),
         positions=alert_positions(a, ts),
         episode=tuple(_segment(ts, tr, a.start, a.end) for _, tr in trs),
-        day=fmt_day(a.start), tz=inputs.display_tz,
+        day=fmt_day(a.start), tz=inputs.display_tz, quoted=alert_strings(a, inputs.zones),
     )
 
 
@@ -228,7 +238,7 @@ def _add_ellipses(m: folium.Map, inc: _Incident) -> None:
     ell_fg = folium.FeatureGroup(name="2-sigma ellipses").add_to(m)
     for tr, lab, t, ring, sd in inc.ellipses:
         tip = folium.Tooltip(
-            f"{esc_tooltip(tr.id)}: {esc_tooltip(lab)} at {esc_tooltip(fmt_clock(t, tz=inc.tz))}"
+            f"{tooltip_user(tr.id)}: {esc_tooltip(lab)} at {esc_tooltip(fmt_clock(t, tz=inc.tz))}"
             f"<br>2-sigma position ellipse ({esc_tooltip(fmt_sd2(sd))})")
         folium.Polygon(
             locations=round5(ring), color=PALETTE["blue"], weight=2, fill=True,
@@ -293,7 +303,7 @@ def _legend(inc: _Incident) -> str:
         items.append(
             f'<span class="hw-key"><svg width="22" height="14" aria-hidden="true"><rect x="1" '
             f'y="1" width="20" height="12" fill="{zs.fill}" fill-opacity="0.25" '
-            f'stroke="{zs.stroke}" stroke-width="2"{dash}/></svg>zone {esc(zone_label(inc.zone))}'
+            f'stroke="{zs.stroke}" stroke-width="2"{dash}/></svg>zone {esc_user(zone_label(inc.zone))}'
             "</span>")
     return f'<div class="hw-legend">{"".join(items)}</div>'
 
@@ -349,7 +359,8 @@ def _facts(inc: _Incident) -> str:
     ]
     skip = ' class="hw-print-skip"'
     rows = "".join(
-        f'<tr{skip if k == "summary" else ""}><th scope="row">{esc(k)}</th><td>{esc(v)}</td></tr>'
+        f'<tr{skip if k == "summary" else ""}><th scope="row">{esc(k)}</th>'
+        f"<td>{esc_isolating(v, inc.quoted)}</td></tr>"
         for k, v in facts if v)
     return f'<table class="hw-facts">{rows}</table>'
 
@@ -359,7 +370,7 @@ def _positions(inc: _Incident) -> str:
     if pos is None:
         return "<p>No positions: the trajectory is not in this run.</p>"
     rows = "".join(
-        f'<tr><td>{esc(p.label)}</td><td>{esc(p.track or "both vessels")}</td>'
+        f'<tr><td>{esc(p.label)}</td><td>{esc_user(p.track) if p.track else "both vessels"}</td>'
         f'<td class="num">{esc(fmt_clock(p.time, day=inc.day, tz=inc.tz))}</td>'
         f'<td class="num hw-pos">{esc(fmt_dm(p.lat, p.lon))}</td>'
         f'<td class="num">{esc(fmt_sd2(p.sd_m))}</td></tr>'
@@ -384,13 +395,13 @@ def incident_html(inputs: ReportInputs, index: int) -> str:
     body = (
         '<p class="hw-nav hw-noprint"><a href="../report.html">\u2190 shift overview</a> \u00b7 '
         '<a href="../report.html#how-to-read">how to read this report</a></p>'
-        f"<h1>Alert {index + 1}: {esc(a.rule)} <span class=\"hw-day\">{esc(inc.day)} "
+        f"<h1>Alert {index + 1}: {esc_user(a.rule)} <span class=\"hw-day\">{esc(inc.day)} "
         "(times UTC)</span></h1>"
         '<div class="hw-incident-top">'
         f'<section><h2>Facts</h2><div class="hw-scroll">{_facts(inc)}</div></section>'
         f"<section><h2>Positions</h2>{_positions(inc)}</section></div>"
         "<h2>Narrative</h2>"
-        f'<p class="hw-narrative" id="hw-narrative">{esc(text)}</p>'
+        f'<p class="hw-narrative" id="hw-narrative">{esc_isolating(text, inc.quoted)}</p>'
         '<section class="hw-map-block"><h2>Map</h2>'
         f"{parts.html}{_legend(inc)}</section>"
         '<section class="hw-chart-block"><h2>Speed</h2>'

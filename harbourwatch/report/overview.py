@@ -24,12 +24,31 @@ from harbourwatch.report._data import (
 )
 from harbourwatch.report._fmt import fmt_clock, fmt_day
 from harbourwatch.report._howto import how_to_read
-from harbourwatch.report._html import esc, esc_tooltip, fmt_prob, script_json
-from harbourwatch.report._layers import add_track, add_zones, track_status, zone_label
+from harbourwatch.report._html import (
+    esc,
+    esc_isolating,
+    esc_tooltip,
+    esc_user,
+    fmt_prob,
+    script_json,
+    tooltip_user,
+)
+from harbourwatch.report._layers import (
+    add_track,
+    add_zones,
+    alert_strings,
+    track_status,
+    zone_label,
+)
 from harbourwatch.report._mapbase import SafePopup, new_map, render_parts, round5
 from harbourwatch.report._page import document, provenance_html
 from harbourwatch.report._style import PALETTE, SENSOR_COLOURS, TRACK_STYLE, zone_kinds
-from harbourwatch.report._vessels import vessel_rows, vessels_html, vessels_payload
+from harbourwatch.report._vessels import (
+    filter_choices,
+    vessel_rows,
+    vessels_html,
+    vessels_payload,
+)
 from harbourwatch.rules.evaluate import Alert
 from harbourwatch.trajectories import TrajectorySet
 from harbourwatch.units import fmt_duration
@@ -157,16 +176,17 @@ def _alerts_table(inputs: ReportInputs) -> str:
             f'<td class="num" data-sort="{i + 1}"><a href="{esc(link)}">{i + 1}</a> '
             f'<button type="button" class="hw-goto hw-noprint" data-alert="{i}" '
             f'title="show on the map and move the replay here">map</button></td>',
-            f"<td>{esc(a.rule)}</td>",
+            f"<td>{esc_user(a.rule)}</td>",
             f"<td>{esc(a.kind)}</td>",
             f"<td>{esc(a.track)}</td>",
             f"<td>{esc(a.other_track)}</td>",
-            f"<td>{esc(a.zone)}</td>",
+            f"<td>{esc_user(a.zone)}</td>",
             f'<td class="num" data-sort="{a.start:.3f}">{esc(fmt_clock(a.start, day=day, tz=tz))}</td>',
             f'<td class="num" data-sort="{a.end:.3f}">{esc(fmt_clock(a.end, day=day, tz=tz))}</td>',
             f'<td class="num" data-sort="{a.end - a.start:.3f}">{esc(fmt_duration(a.end - a.start))}</td>',
             f'<td class="num" data-sort="{a.probability:.6f}">{esc(fmt_prob(a.probability))}</td>',
-            f'<td class="hw-summary"><a href="{esc(link)}">{esc(a.summary)}</a></td>',
+            f'<td class="hw-summary"><a href="{esc(link)}">'
+            f"{esc_isolating(a.summary, alert_strings(a, inputs.zones))}</a></td>",
         ]
         rows.append("<tr>" + "".join(cells) + "</tr>")
     return (
@@ -239,7 +259,7 @@ def _alert_markers(m: folium.Map, inputs: ReportInputs) -> None:
         ll = alert_latlon(ts, a)
         if ll is None:
             continue
-        tip = (f"<b>{esc_tooltip(a.rule)}</b> ({esc_tooltip(a.kind)}), track "
+        tip = (f"<b>{tooltip_user(a.rule)}</b> ({esc_tooltip(a.kind)}), track "
                f"{esc_tooltip(a.track)}<br>{format_clock(a.start)}\u2013{format_clock(a.end)} UTC, "
                f"p = {fmt_prob(a.probability)}")
         mk = folium.CircleMarker(
@@ -248,7 +268,7 @@ def _alert_markers(m: folium.Map, inputs: ReportInputs) -> None:
             tooltip=folium.Tooltip(tip),
         )
         mk.add_child(SafePopup(
-            f'<b>{esc(a.rule)}</b><br>{esc(a.summary)}<br>'
+            f'<b>{esc_user(a.rule)}</b><br>{esc_isolating(a.summary, alert_strings(a, inputs.zones))}<br>'
             f'<a href="incidents/{incident_name(i)}">open incident page {i + 1}</a>'))
         mk.add_to(alerts_fg)
 
@@ -330,6 +350,7 @@ def overview_html(inputs: ReportInputs) -> str:
                    f"{vessels_html(inputs, vrows)}</section>")
         day0 = float(np.floor(ts.feed_start / 86400.0) * 86400.0) - ts.feed_start
         vdata = {"rows": vessels_payload(vrows, ts.feed_start), "day0": day0,
+                 **filter_choices(inputs),
                  "alerts": [{"s": round(a.start - ts.feed_start, 3), "track": a.track}
                             for a in inputs.alerts]}
         blocks = {"hw-replay-data": script_json(payload), "hw-page-data": script_json(page),

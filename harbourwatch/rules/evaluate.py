@@ -39,7 +39,7 @@ SHA-256 hashes of the ids, so results do not depend on evaluation order.
 from __future__ import annotations
 
 import hashlib
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from types import MappingProxyType
 from typing import Any
@@ -370,6 +370,7 @@ def evaluate_rules(
     *,
     seed: int = 0,
     n_samples: int = DEFAULT_SAMPLES,
+    progress: Callable[[int, int], None] = lambda done, total: None,
 ) -> list[Alert]:
     """Every alert of every rule over the whole trajectory set.
 
@@ -383,6 +384,8 @@ def evaluate_rules(
         Run seed of the Monte-Carlo draws (same seed, same alerts).
     n_samples
         Joint draws per candidate window.
+    progress
+        Called as ``progress(rules_done, rules_total)`` after each rule.
 
     Returns
     -------
@@ -398,7 +401,8 @@ def evaluate_rules(
         local = local_zones([z for z in zones if z.id in used], trajectories.frame)
     trajs = sorted(trajectories.trajectories, key=lambda tr: tr.id)
     alerts: list[Alert] = []
-    for rule in rules:
+    for k, rule in enumerate(rules):
+        progress(k, len(rules))
         kind = RULE_KINDS[rule.kind](rule, local.get(rule.zone) if rule.zone else None)
         if kind.pairwise:
             for (i, j), bins in _pair_prefilter(kind, trajs).items():
@@ -406,5 +410,6 @@ def evaluate_rules(
         else:
             for tr in trajs:
                 alerts += _evaluate_single(kind, tr, seed, n_samples)
+    progress(len(rules), len(rules))
     alerts.sort(key=lambda al: (al.start, al.rule, al.track, al.other_track))
     return alerts

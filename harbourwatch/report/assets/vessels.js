@@ -1,6 +1,7 @@
 /* harbourwatch vessel list: search and filters, and a click that shows the vessel on the
    map and moves the replay to it. Data: the JSON block "hw-vessels-data"
-   ({rows: [{id, s, e, status, zones, rules}], alerts: [{s, track}], day0: seconds from the
+   ({rows: [{id, s, e, status, zones, rules}], alerts: [{s, track}], zones and rules: [[value,
+   label]] of the filters, day0: seconds from the
    feed start to 00:00 UTC of its first day}); see report/_vessels.py. */
 (function () {
   "use strict";
@@ -19,6 +20,16 @@
   var rule = document.getElementById("hw-vrule");
   var status = document.getElementById("hw-vstatus");
   var count = document.getElementById("hw-vcount");
+  /* the zone and rule choices, added as text (user strings never pass through HTML here) */
+  [[zone, cfg.zones || []], [rule, cfg.rules || []]].forEach(function (pair) {
+    pair[1].forEach(function (vl) {
+      var o = document.createElement("option");
+      o.value = vl[0];
+      o.textContent = vl[1];
+      o.dir = "auto";
+      pair[0].appendChild(o);
+    });
+  });
 
   function clockSeconds(input) {  /* "HH:MM" of the feed's first UTC day -> s from feed start */
     if (!input.value) { return null; }
