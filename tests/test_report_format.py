@@ -104,3 +104,20 @@ def test_script_json_round_trips_and_hides_script_syntax(text: str) -> None:
     assert json.loads(out) == {"name": text, "n": [1, 2]}
     assert not any(c in out for c in "<>&$`") and "\\\\" not in out
     assert "{{" not in out and "{%" not in out and "{#" not in out
+
+
+def test_warnings_in_run_json_are_shown_escaped(tmp_path: Path) -> None:
+    import sys
+    from dataclasses import replace
+
+    sys.path.insert(0, str(Path(__file__).parent))
+    from report_fixtures import make_inputs
+
+    from harbourwatch.report import write_reports
+
+    inputs = make_inputs(n_tracks=3)
+    warn = "zone <Far> is 4,200 km from the nearest radar"
+    inputs = replace(inputs, provenance={**inputs.provenance, "warnings": [warn]})
+    html = write_reports(tmp_path, inputs)[0].read_text("utf-8")
+    assert '<div class="hw-warn" role="note" id="hw-warnings">' in html
+    assert "zone &lt;Far&gt; is 4,200 km" in html and warn not in html
