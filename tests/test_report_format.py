@@ -107,10 +107,8 @@ def test_script_json_round_trips_and_hides_script_syntax(text: str) -> None:
 
 
 def test_warnings_in_run_json_are_shown_escaped(tmp_path: Path) -> None:
-    import sys
     from dataclasses import replace
 
-    sys.path.insert(0, str(Path(__file__).parent))
     from report_fixtures import make_inputs
 
     from harbourwatch.report import write_reports
