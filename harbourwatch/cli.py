@@ -53,6 +53,19 @@ def _parser(sub: Any, name: str, help_: str) -> argparse.ArgumentParser:
                           epilog=EXIT_CODES, formatter_class=_WithDefaults)
 
 
+def _time_zone(text: str) -> str:
+    """argparse type of ``--display-tz``: a known IANA zone name, else a usage error (exit 2)."""
+    from harbourwatch.errors import ParameterError
+    from harbourwatch.report._fmt import display_zone
+
+    try:
+        display_zone(text)
+    except ParameterError:
+        raise argparse.ArgumentTypeError(
+            f"unknown time zone {text!r}: give an IANA name such as Europe/Oslo") from None
+    return text
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The ``harbourwatch`` argument parser with its four commands.
 
@@ -79,6 +92,9 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--flag-alerts", action="store_true",
                    help=f"exit with status {EXIT_ALERTS} when any alert is raised")
     r.add_argument("--quiet", action="store_true", help="no progress bars")
+    r.add_argument("--display-tz", metavar="ZONE", default=None, type=_time_zone,
+                   help="also show times in this IANA time zone beside UTC on the pages, "
+                        "e.g. Europe/Oslo; none: UTC only")
 
     s = _parser(sub, "score",
                 "accuracy of tracks against ground truth (GOSPA, trajectory GOSPA)")
@@ -120,7 +136,7 @@ def _cmd_run(a: argparse.Namespace) -> int:
 
     summary = run_review(
         a.feeds, sensors=a.sensors, zones=a.zones, rules=a.rules, out=a.out,
-        seed=a.seed, tile_url=a.tiles, progress=not a.quiet,
+        seed=a.seed, tile_url=a.tiles, progress=not a.quiet, display_tz=a.display_tz,
     )
     print(summary.as_text())
     print(f"\nOpen the shift overview: {Path(a.out, 'report.html').resolve()}")

@@ -202,6 +202,7 @@ class _Request:
     seed: int
     tile_url: str | None
     screenshots: bool
+    display_tz: str | None = None
 
     def input_files(self) -> list[PathArg]:
         return [*self.feeds, self.sensors, self.zones, self.rules]
@@ -248,7 +249,7 @@ def _apply_rules(req: _Request, inp: RunInputs, scene: LocalScene, tset: Traject
     alerts = evaluate_rules(tset, scene.zones, inp.rules, seed=req.seed,
                             progress=bars.stage("rules") or _quiet)
     timings["rules_s"] = time.perf_counter() - t
-    write_alerts_csv(alerts, out_dir / "alerts.csv")
+    write_alerts_csv(alerts, out_dir / "alerts.csv", trajectories=tset)
     return alerts
 
 
@@ -264,7 +265,7 @@ def _write_pages(req: _Request, inp: RunInputs, tset: TrajectorySet, alerts: lis
         ReportInputs(
             trajectories=tset, plots=inp.plots, scans=inp.scans, sensors=inp.sensors,
             zones=inp.zones, rules=inp.rules, alerts=alerts, provenance=provenance,
-            tile_url=req.tile_url,
+            tile_url=req.tile_url, display_tz=req.display_tz,
         ),
         progress=bars.stage("reports"),
     )
@@ -295,6 +296,7 @@ def _review_into(req: _Request, inp: RunInputs, out_dir: Path, bars: RunProgress
             settings=req.settings, seed=req.seed, tile_url=req.tile_url, frame=scene.frame,
             tset=tset, alerts=alerts, fout=fout, timings=timings,
         )
+        provenance["parameters"]["display_tz"] = req.display_tz
         _write_pages(req, inp, tset, alerts, provenance, out_dir, bars, timings)
     finally:
         pool.shutdown(wait=True)
@@ -354,6 +356,7 @@ def run_review(
     tile_url: str | None = None,
     progress: bool = True,
     screenshots: bool = False,
+    display_tz: str | None = None,
 ) -> RunSummary:
     """Review plot feeds end to end and write every output into ``out``.
 
@@ -378,6 +381,8 @@ def run_review(
         Optional tile server URL template for a basemap in the reports.
     progress
         Show progress bars of every stage on a terminal.
+    display_tz
+        IANA time zone shown beside UTC on the pages (``None``: UTC only).
     screenshots
         Also save PNG screenshots of the reports under ``out/screenshots``
         (needs a local Chromium; skipped with a note otherwise).
@@ -394,7 +399,10 @@ def run_review(
     """
     req = _Request(feeds=feeds, sensors=sensors, zones=zones, rules=rules, out=out,
                    settings=settings or FilterSettings(), seed=seed, tile_url=tile_url,
-                   screenshots=screenshots)
+                   screenshots=screenshots, display_tz=display_tz)
+    from harbourwatch.report._fmt import display_zone
+
+    display_zone(display_tz)  # an unknown zone fails here, before any work
     return _review(req, progress=progress)
 
 

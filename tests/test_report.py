@@ -266,7 +266,7 @@ def test_same_inputs_give_identical_bytes(tmp_path: Path, written: tuple[Path, l
 def test_every_page_has_caution_first_and_print_rules(written: tuple[Path, list[Path]]) -> None:
     for p in written[1]:
         text = p.read_text("utf-8")
-        body = text.split("<body>", 1)[1]
+        body = re.split(r"<body[^>]*>", text, maxsplit=1)[1]
         assert body.lstrip().startswith('<p class="hw-caution"')
         assert CAUTION in body
         assert "@page { size: A4" in text

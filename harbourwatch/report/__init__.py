@@ -36,6 +36,8 @@ class ReportInputs:
     alerts: Sequence[Alert]
     provenance: Mapping[str, Any]
     tile_url: str | None = None
+    #: IANA time zone shown beside UTC on the pages (``--display-tz``), or ``None``.
+    display_tz: str | None = None
 
 
 def write_reports(out_dir: Path, inputs: ReportInputs, *,

@@ -106,19 +106,27 @@ def script_json(obj: Any) -> str:
     --------
     >>> script_json({"a": "</script>"})
     '{"a":"\\\\u003c/script\\\\u003e"}'
+    >>> import json; v = "${x}`\\\\n\\"\\\\"; json.loads(script_json([v])) == [v]
+    True
     """
     text = json.dumps(obj, ensure_ascii=True, separators=(",", ":"), allow_nan=False)
     text = text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
-    if "{" in text:  # braces inside strings as escapes; structural JSON never forms "{{", "{%", "{#"
-        text = _JSON_STRING.sub(_escape_braces, text)
+    text = text.replace("$", "\\u0024").replace("`", "\\u0060")  # only ever inside strings
+    if "{" in text or "\\\\" in text:  # braces and backslashes inside strings as \\u escapes;
+        text = _JSON_STRING.sub(_escape_braces, text)  # structural JSON never forms "{{", "{%"
     return text
 
 
 _JSON_STRING = re.compile(r'"(?:[^"\\]|\\.)*"')
 
 
+_JSON_BACKSLASH = re.compile(r"\\\\")  # an escaped backslash: the two characters \\
+
+
 def _escape_braces(match: re.Match[str]) -> str:
-    return match.group(0).replace("{", "\\u007b").replace("}", "\\u007d")
+    text = match.group(0).replace("{", "\\u007b").replace("}", "\\u007d")
+    # escape pairs are read left to right, so each non-overlapping pair is one backslash
+    return _JSON_BACKSLASH.sub(lambda _m: "\\u005c", text)
 
 
 def fmt_prob(p: float) -> str:
