@@ -21,8 +21,8 @@ from typing import Any
 
 from harbourwatch.errors import InputError
 
-__all__ = ["control_character", "read_text", "read_input", "InputBytes", "BLOCK_BYTES",
-           "FEED_MAX_BYTES", "CONFIG_MAX_BYTES", "ZONES_MAX_BYTES"]
+__all__ = ["BIDI_CONTROLS", "control_character", "read_text", "read_input", "InputBytes",
+           "BLOCK_BYTES", "FEED_MAX_BYTES", "CONFIG_MAX_BYTES", "ZONES_MAX_BYTES"]
 
 #: Block size of every read; the text checks look at the first block first.
 BLOCK_BYTES = 1 << 20
@@ -36,23 +36,40 @@ _GZIP_MAGIC = b"\x1f\x8b"
 _PARQUET_MAGIC = b"PAR1"
 _MIB = 1 << 20
 
+#: The bidirectional formatting characters (Unicode Standard Annex #9, "Unicode
+#: Bidirectional Algorithm", table 4 "Explicit formatting characters" and section 2.6
+#: "Implicit directional marks"): embeddings and overrides U+202A..U+202E, isolates
+#: U+2066..U+2069, and the marks LRM U+200E, RLM U+200F and ALM U+061C.
+BIDI_CONTROLS = frozenset(
+    [chr(c) for c in range(0x202A, 0x202F)] + [chr(c) for c in range(0x2066, 0x206A)]
+    + ["\u200e", "\u200f", "\u061c"]
+)
+
 
 def control_character(text: str) -> str | None:
     """Why ``text`` is refused for holding a control character, or ``None`` when it is fine.
 
     Ids, names and kinds end up in terminal tables, CSV files and web pages;
     a control character (tab, newline, escape, ...) has no place in any of
-    them and could rewrite what a terminal shows.
+    them and could rewrite what a terminal shows. Bidirectional controls
+    (:data:`BIDI_CONTROLS`) are refused too: a right-to-left override in a
+    zone name would reverse the rest of a narrative, times and probability
+    included, wherever it is shown.
 
     Examples
     --------
     >>> control_character("Calder Fairway")
     >>> control_character("red\x1b[31m")
     'control character U+001B is not allowed (at position 4)'
+    >>> control_character("Calder\u202eyawriaF")
+    'bidirectional control character U+202E is not allowed (at position 7)'
     """
     for k, ch in enumerate(text):
         if unicodedata.category(ch) == "Cc":
             return f"control character U+{ord(ch):04X} is not allowed (at position {k + 1})"
+        if ch in BIDI_CONTROLS:
+            return (f"bidirectional control character U+{ord(ch):04X} is not allowed "
+                    f"(at position {k + 1})")
     return None
 
 

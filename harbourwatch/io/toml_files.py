@@ -135,7 +135,8 @@ class _Entry:
     def check_number(self, key: str, v: Any, *, lo: float, hi: float, lo_open: bool = False,
                      hi_open: bool = False, what: str = "a number", why: str = "") -> float:
         if isinstance(v, bool) or not isinstance(v, int | float):
-            raise self.error(key, f"expected {what}, found {_show(v)}")
+            hint = " (text, not a number: remove the quotes)" if _numeric_text(v) else ""
+            raise self.error(key, f"expected {what}, found {_show(v)}{hint}")
         if isinstance(v, int) and abs(v) > _MAX_EXACT_INT:
             digits = len(str(abs(v)))
             raise self.error(key, f"expected {what}{why}, found an integer of {digits} digits "
@@ -147,6 +148,16 @@ class _Entry:
         if below or above:
             raise self.error(key, f"expected {what}{why}, found {_show(v)}")
         return v
+
+
+def _numeric_text(v: Any) -> bool:
+    """True for a TOML string that holds a number (``lat = "54.3"``)."""
+    if not isinstance(v, str):
+        return False
+    try:
+        return math.isfinite(float(v))
+    except ValueError:
+        return False
 
 
 def _entries(path: str | PathLike[str], data: Mapping[str, Any], text: str,

@@ -136,7 +136,7 @@ def time_chart(
     def Y(y: Any) -> Any:
         return MT + ph - (np.asarray(y, float) - y_min) / (y_max - y_min) * ph
 
-    out = [_svg_open(title, height)]
+    out = [_svg_open(title, height, cls="hw-chart hw-time")]
     for b in bands:
         a, e = max(b.start, t0), min(b.end, t1)
         if e < a:
