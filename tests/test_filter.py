@@ -425,3 +425,33 @@ def test_node_store_compaction_changes_nothing(monkeypatch):
         assert a.end_probability == b.end_probability
     for name in ("time", "track", "mean", "sd", "existence"):
         assert np.array_equal(getattr(plain.as_seen, name), getattr(squeezed.as_seen, name))
+
+
+def test_outage_of_one_radar_during_a_burst_on_the_other_breaks_no_track():
+    # issue 14: radar B silent for ten minutes while a squall of 500 false plots per scan
+    # hits radar A for 30 s in the middle of the traffic; every vessel radar A still sees
+    # must come out as one trajectory throughout (its plots in a single trajectory)
+    vessels = [
+        Vessel(0.0, 1500.0, (-3000.0 + 800.0 * k, -2500.0 + 300.0 * (k % 3)), (2.0, 3.0))
+        for k in range(8)
+    ]
+    radars = [
+        Radar(
+            site=(-2000.0, 0.0),
+            period=2.5,
+            clutter_per_scan=15.0,
+            bursts={k: (500, (-500.0, -500.0), 1500.0) for k in range(240, 252)},
+        ),  # scans 240..251: t = 600 .. 630 s, during the outage of radar B
+        Radar(
+            site=(2000.0, 0.0),
+            period=3.0,
+            offset=1.1,
+            clutter_per_scan=15.0,
+            silent=[(300.0, 900.0)],
+        ),  # ten minutes without scans
+    ]
+    feed = make_feed(vessels, radars, 1500.0, seed=8)
+    out = run_filter(feed.scans, feed.sensors, FilterSettings())
+    pur = _check_identities(out, feed, len(vessels))
+    assert all(len(p) == 1 for p in pur), pur
+    assert len(out.trajectories) == len(vessels)
