@@ -455,3 +455,45 @@ def test_outage_of_one_radar_during_a_burst_on_the_other_breaks_no_track():
     pur = _check_identities(out, feed, len(vessels))
     assert all(len(p) == 1 for p in pur), pur
     assert len(out.trajectories) == len(vessels)
+
+
+def test_estimating_finished_clusters_early_changes_nothing_and_frees_their_nodes(monkeypatch):
+    # a cluster whose hypotheses have all ended is estimated when it is finished (so that
+    # its nodes can be freed): byte-identical to estimating it at the end of the feed
+    vessels = [
+        Vessel(0.0, 200.0, (-1500.0, -500.0), (5.0, 1.0)),  # stops at 200 s
+        Vessel(100.0, 400.0, (1000.0, 1000.0), (-3.0, -3.0)),  # 100 .. 400 s
+        Vessel(0.0, 900.0, (-2000.0, 1500.0), (3.0, -1.0)),  # to the end
+        Vessel(0.0, 900.0, (2500.0, 0.0), (6.0, 0.0)),  # leaves the cover at 250 s
+    ]
+    radar = Radar(site=(0.0, 0.0), max_range=4000.0, clutter_per_scan=15.0)
+    feed = make_feed(vessels, [radar], 900.0, seed=6)
+    from harbourwatch.filter import _estimate
+    from harbourwatch.filter._nodes import NodeStore
+
+    monkeypatch.setattr(tpmbm, "_COMPACT_MIN", 64)
+    monkeypatch.setattr(tpmbm, "NodeStore", lambda: NodeStore(capacity=128))
+    early_pieces = []
+    real = _estimate.estimate_retired
+
+    def spy(*args, **kw):
+        pieces, waiting = real(*args, **kw)
+        early_pieces.extend(pieces)
+        return pieces, waiting
+
+    monkeypatch.setattr(_estimate, "estimate_retired", spy)
+    early = run_filter(feed.scans, feed.sensors, FilterSettings())
+    monkeypatch.setattr(_estimate, "estimate_retired", lambda retired, *a, **k: ([], list(retired)))
+    late = run_filter(feed.scans, feed.sensors, FilterSettings())
+    assert len(early_pieces) >= 2  # vessels that ended were estimated early
+    assert early.stats["nodes"] < late.stats["nodes"]  # and their chains freed
+    assert [t.id for t in early.trajectories] == [t.id for t in late.trajectories]
+    for a, b in zip(early.trajectories, late.trajectories, strict=True):
+        for name in ("time", "mean", "cov", "filt_mean", "filt_cov", "pred_mean", "pred_cov",
+                     "plot_ids", "sensor_ids"):
+            assert np.array_equal(getattr(a, name), getattr(b, name)), name
+        assert (a.existence, a.end_probability, a.alive_at_end) == (
+            b.existence, b.end_probability, b.alive_at_end)
+    for name in ("time", "track", "mean", "sd", "existence"):
+        assert np.array_equal(getattr(early.as_seen, name), getattr(late.as_seen, name))
+    assert early.stats["plots_in_trajectories"] == late.stats["plots_in_trajectories"]

@@ -60,6 +60,7 @@ from collections.abc import Callable, Sequence
 import numpy as np
 from numpy.typing import NDArray
 
+from harbourwatch.filter import _estimate as est
 from harbourwatch.filter._association import (
     LONE_LOGW,
     LONE_TABLE,
@@ -69,7 +70,6 @@ from harbourwatch.filter._association import (
     update_single,
 )
 from harbourwatch.filter._cluttermap import ClutterMap
-from harbourwatch.filter._estimate import AsSeenRows, FilterEnd, build_output
 from harbourwatch.filter._gating import MIN_STEP_S, chi2_gate, cover_detection, gate_pairs
 from harbourwatch.filter._hypotheses import (
     Bernoulli,
@@ -129,7 +129,8 @@ class _Filter:
         self.nodes = NodeStore()
         self.clutter_map = ClutterMap()
         self.clusters: list[Cluster] = []
-        self.retired: list[Cluster] = []  # every local hypothesis frozen
+        self.retired: list[Cluster] = []  # every local hypothesis frozen, not yet estimated
+        self.finished: list[est.Piece] = []  # trajectories of retired clusters, estimated
         self.next_bid = 0
         self.caps: dict[str, int] = defaultdict(int)
         self.log: list[str] = []
@@ -141,7 +142,7 @@ class _Filter:
         self.scan_count = 0
         self.scan_index = 0
         self.last_time = -math.inf
-        self.as_seen: list[AsSeenRows] = []
+        self.as_seen: list[est.AsSeenRows] = []
 
     # -- bookkeeping -------------------------------------------------------------------
     def count_cap(self, name: str) -> None:
@@ -296,8 +297,11 @@ class _Filter:
             )
         self.clusters = keep_clusters + new_clusters
         if scan_index % 64 == 0:  # clusters whose hypotheses have all ended never change again
-            self.retired.extend(c for c in self.clusters if _finished(c))
-            self.clusters = [c for c in self.clusters if not _finished(c)]
+            self.retired.extend(c for c in self.clusters if est.all_frozen(c))
+            self.clusters = [c for c in self.clusters if not est.all_frozen(c)]
+            # estimate those nothing can change any more, so that compaction frees their nodes
+            done, self.retired = est.estimate_retired(self.retired, self.nodes, st, self.last_time)
+            self.finished.extend(done)
         self.timers["associate"] += _time.perf_counter() - t0
 
         t0 = _time.perf_counter()
@@ -416,7 +420,7 @@ class _Filter:
             idx = np.array(leaves, np.int64)
             P = self.nodes.P[idx]
             self.as_seen.append(
-                AsSeenRows(
+                est.AsSeenRows(
                     time=tk,
                     bids=np.array(bids, np.int64),
                     mean=self.nodes.m[idx],
@@ -442,10 +446,6 @@ class _Filter:
                 lh.end_nodes = tuple(remap[list(lh.end_nodes)].tolist())
         if nodes.n > 0.5 * cap:  # mostly live: make room now
             nodes._reserve(cap - nodes.n + 1)
-
-
-def _finished(c: Cluster) -> bool:
-    return all(lh.frozen for b in c.berns for lh in b.lhs)
 
 
 def run_tpmbm(
@@ -474,11 +474,12 @@ def run_tpmbm(
         if gc_was_enabled:
             gc.enable()
     t0 = _time.perf_counter()
-    out = build_output(
-        FilterEnd(
+    out = est.build_output(
+        est.FilterEnd(
             settings=filt.settings,
             nodes=filt.nodes,
             clusters=filt.retired + filt.clusters,
+            finished=filt.finished,
             last_time=filt.last_time,
             as_seen=filt.as_seen,
             stats={
