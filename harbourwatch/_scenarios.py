@@ -382,3 +382,10 @@ SCENARIOS: dict[str, ScenarioSpec] = {
                                  "model, six vessels on steady legs"),
     )
 }
+
+# the East Quay scenes (large ships) live in their own module, which imports the helpers above
+from ._scenario_quay import QUAY_SPECS  # noqa: E402
+
+for _name, _build_fn, _seed, _dur, _text in QUAY_SPECS:
+    SCENARIOS[_name] = ScenarioSpec(name=_name, build=_build_fn, default_seed=_seed,
+                                    default_duration_s=_dur, description=_text)
