@@ -17,7 +17,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from ._scenarios import START_EPOCH_S, _FRAME, _go, _plan, _rect, _sensor
+from ._scenarios import _FRAME, START_EPOCH_S, _go, _plan, _rect, _sensor
 from .simulate import Leg, Scenario, SimSensor, VesselPlan
 
 __all__ = ["QUAY_RULES", "quay_zones_geojson", "QUAY_SPECS"]

@@ -81,6 +81,7 @@ def build_output(filt: _Filter) -> FilterOutput:
                 alive_at_end=alive_at_end,
                 plot_ids=plots,
                 sensor_ids=nodes.sensor[idx].copy(),
+                extent=lh.ext,
             )
         )
     if filt.as_seen:

@@ -48,7 +48,7 @@ class ChildMaker:
 
     __slots__ = (
         "base", "pend", "_leaf_nodes", "_pair_slot", "_pd", "_ps", "_inside", "_r_new",
-        "_r_prune", "_new_bid", "_miss_node", "_det_node",
+        "_r_prune", "_new_bid", "_miss_node", "_det_node", "slot_ext", "pair_ext", "born_ext",
     )
 
     def __init__(
@@ -75,6 +75,11 @@ class ChildMaker:
         self._new_bid = new_bid
         self._miss_node: dict[int, int] = {}
         self._det_node: dict[int, int] = {}
+        # extents (see ``_extent``): predicted per extended slot, updated per extended pair,
+        # of a new vessel per multi-plot cell; point-like hypotheses have none
+        self.slot_ext: dict[int, tuple[float, ...]] = {}
+        self.pair_ext: dict[int, tuple[float, ...]] = {}
+        self.born_ext: dict[int, tuple[float, ...]] = {}
 
     def miss(self, old: LocalHyp) -> LocalHyp:
         """The missed-detection child of ``old`` (``old`` itself where it cannot be detected)."""
@@ -84,6 +89,7 @@ class ChildMaker:
         if not self._inside[s]:  # just outside the cover: reweight, no new state
             r2, al2, endp2, _ = miss_update(old.r, old.alive, old.end_p, self._pd[s])
             child = LocalHyp(old.node, r2, al2, old.end_nodes, endp2)
+            child.ext = old.ext
             if al2 < ALIVE_FLOOR:
                 child.freeze()
             return child
@@ -96,6 +102,8 @@ class ChildMaker:
             node = self._miss_node[s] = self.base + len(self.pend) // 3
             self.pend.extend((MISS, s, old.node))
         child = LocalHyp(node, r2, al2, old.end_nodes + (old.node,), endp2)
+        if old.ext is not None:
+            child.ext = self.slot_ext.get(s, old.ext)
         if al2 < ALIVE_FLOOR:
             child.freeze()
         return child
@@ -106,12 +114,18 @@ class ChildMaker:
         if node is None:
             node = self._det_node[pair] = self.base + len(self.pend) // 3
             self.pend.extend((DET, pair, self._leaf_nodes[self._pair_slot[pair]]))
-        return LocalHyp(node, 1.0)
+        child = LocalHyp(node, 1.0)
+        if self.pair_ext:
+            child.ext = self.pair_ext.get(pair)
+        return child
 
     def born(self, j: int) -> Bernoulli:
-        """A new Bernoulli whose trajectory starts at plot ``j``."""
+        """A new Bernoulli whose trajectory starts at plot (or multi-plot cell) ``j``."""
         self.pend.extend((NEW, j, -1))
-        return Bernoulli(self._new_bid(), [LocalHyp(self.base + len(self.pend) // 3 - 1, self._r_new[j])])
+        lh = LocalHyp(self.base + len(self.pend) // 3 - 1, self._r_new[j])
+        if self.born_ext:
+            lh.ext = self.born_ext.get(j)
+        return Bernoulli(self._new_bid(), [lh])
 
     def queued(self) -> tuple[NDArray[np.int64], NDArray[np.int64], NDArray[np.int64]]:
         """The queued nodes' kinds, sources (slot, pair or plot) and parent nodes."""

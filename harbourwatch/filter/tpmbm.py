@@ -70,7 +70,9 @@ from ._association import (
     update_group,
     update_single,
 )
+from ._cells import LADDER_M, cell_groups, group_partitions, update_partitions
 from ._estimate import build_output
+from ._extscan import extended_scan, inside_hulls, overlap_penalty, predict_slots
 from ._gating import MIN_STEP_S, chi2_gate, cover_detection, gate_pairs
 from ._hypotheses import (
     Bernoulli,
@@ -93,6 +95,7 @@ _CAP_TEXT = {
     "max_local_hypotheses": "local hypotheses of a trajectory cut to max_local_hypotheses",
     "merged_hypotheses": "product of merged clusters cut to 10 x max_global_hypotheses",
     "large_group": "too many plots in one group: only the best assignment is kept",
+    "max_partitions": "candidate partitions of a group's plots into cells cut to the first 8",
 }
 
 
@@ -133,6 +136,7 @@ class _Filter:
         self.timers: dict[str, float] = defaultdict(float)
         self.max_berns = 0
         self.max_hyps = 0
+        self.ext_pairs = 0  # (hypothesis, cell) pairs scored with the extended model
         self.skipped_scans = 0
         self.plots_total = 0
         self.scan_count = 0
@@ -179,6 +183,8 @@ class _Filter:
         # gather the active local hypotheses
         lhs: list[LocalHyp] = []
         slot_cluster: list[int] = []  # cluster index of each slot
+        ext_slots: list[int] = []  # slots of extended vessels (see ``_extent``)
+        slot_bern: list[int] = []  # Bernoulli id of each slot
         for ci, c in enumerate(self.clusters):
             for b in c.berns:
                 for lh in b.lhs:
@@ -186,8 +192,11 @@ class _Filter:
                         lh.slot = -1
                     else:
                         lh.slot = len(lhs)
+                        if lh.ext is not None:
+                            ext_slots.append(len(lhs))
                         lhs.append(lh)
                         slot_cluster.append(ci)
+                        slot_bern.append(b.bid)
         n = len(lhs)
         node_idx = np.fromiter((lh.node for lh in lhs), np.int64, n)
         t_leaf = self.nodes.t[node_idx]
@@ -207,6 +216,13 @@ class _Filter:
                 lhs[s].freeze(coasted=True)
                 lhs[s].slot = -1
         pd = np.where(coast, 0.0, cover_detection(pm, pP, sensor))
+        slot_ext: dict[int, tuple[float, float, float, Array]] = {}
+        ext_pred: dict[int, tuple[float, ...]] = {}
+        pd_point = pd
+        if ext_slots:  # extended vessels: p_D of "at least one plot", and off the point path
+            slot_ext, ext_pred, pd = predict_slots(lhs, ext_slots, dt, pd)
+            pd_point = pd.copy()
+            pd_point[ext_slots] = 0.0
         # a missed detection makes a node only where the predicted mean is inside the range
         hard = np.hypot(pm[:, 0] - sensor.site[0], pm[:, 2] - sensor.site[1]) <= sensor.max_range_m
         r = np.fromiter((lh.r for lh in lhs), float, n)
@@ -218,9 +234,22 @@ class _Filter:
 
         # gating and detection children (vectorised over hypothesis x plot)
         t0 = _time.perf_counter()
-        z, R, tj = scan.z, scan.R, scan.plot_time
-        pairs = gate_pairs(self.gate, self.motion, leaf_mm, leaf_mP, leaf_mu, pd, t_leaf, z, R, tj)
+        z, R, tj, ids = scan.z, scan.R, scan.plot_time, scan.plot_ids
+        pairs = gate_pairs(self.gate, self.motion, leaf_mm, leaf_mP, leaf_mu, pd_point, t_leaf,
+                           z, R, tj)
+        ext = None
+        if ext_slots or (m > 1 and _has_close_plots(z)):
+            ext = extended_scan(self.motion, self.gate, (leaf_mm, leaf_mP, leaf_mu, t_leaf), pm,
+                                pP, tmiss, pd, slot_ext, z, R, tj, ids, pairs, slot_bern)
+            if ext.book.cells or ext.ext_pairs:
+                pairs = ext.pairs
+                z, R, tj, ids = ext.z, ext.R, ext.tj, ext.ids
+                self.ext_pairs += ext.ext_pairs
+            else:
+                ext = None
         ii, jj, ll, stamp, m_upd, P_upd, um, uP, mu_upd = pairs
+        if slot_ext and ii.size:
+            ll = overlap_penalty(ii, jj, ll, z, pm, pP, slot_ext, slot_bern, r)
         self._pair_modes = (um, uP, mu_upd)
         self._miss_modes = (pmm, pmP, mu_pred)
         self._pair_plot = jj
@@ -234,10 +263,15 @@ class _Filter:
             np.hypot(z[:, 0] - sensor.site[0], z[:, 1] - sensor.site[1]) <= sensor.max_range_m
         )
         e = np.where(in_range, sensor.detection_probability, 0.0) * self.ppp.density(z)
+        if slot_ext:  # no vessel starts inside a known hull
+            e[inside_hulls(z, pm, pP, slot_ext)] = 0.0
         lam = sensor.clutter_intensity
         w_new = np.maximum(e + lam, 1e-300)  # > 0: every plot can always be clutter
         ln_new = np.log(w_new)
         r_new = e / w_new
+        if ext is not None and ext.book.cells:  # a multi-plot cell: a new extended vessel
+            ln_new[m:] = np.log(np.maximum(e[m:], 1e-300)) + ext.cell_ln_lik
+            r_new[m:] = 1.0
         self.timers["gate"] += _time.perf_counter() - t0
 
         # children of the local hypotheses; their nodes are written in one batch below
@@ -249,17 +283,32 @@ class _Filter:
             self.nodes.n, node_idx.tolist(), ii_l, pd_l, ps.tolist(), hard.tolist(), r_new_l,
             st.existence_prune, self._new_bid,
         )
+        if ext is not None:
+            maker.slot_ext, maker.pair_ext, maker.born_ext = ext_pred, ext.pair_ext, ext.born_ext
+        elif ext_pred:
+            maker.slot_ext = ext_pred
         ctx = ScanContext(
             pd_l, ln_miss.tolist(), det_pairs, ln_det.tolist(), ln_new, maker.miss,
             maker.detection, maker.born, ln_new.tolist(),
         )
-        work, busy = group_work(
-            m, len(self.clusters), ii_l, jj_l, slot_cluster, np.flatnonzero(pd > 0).tolist()
-        )
+        cover_slots = np.flatnonzero(pd > 0).tolist()
+        if ext is not None and ext.book.cells:
+            work, busy = cell_groups(m, len(self.clusters), ii_l, jj_l, slot_cluster,
+                                     cover_slots, ext.book)
+        else:
+            work, busy = group_work(m, len(self.clusters), ii_l, jj_l, slot_cluster, cover_slots)
         keep_clusters = [c for ci, c in enumerate(self.clusters) if ci not in busy]
         new_clusters: list[Cluster] = []
         updated = []
         for plots, cis in work:
+            if ext is not None and ext.book.cells and len(plots) > 1:
+                parts = group_partitions(plots, ext.partitions, ext.book)
+                if len(parts) > 1:
+                    cls = [self.clusters[ci] for ci in cis]
+                    updated.append(update_partitions(cls, parts, ctx,
+                                                     max_hyp=st.max_global_hypotheses,
+                                                     count_cap=self.count_cap))
+                    continue
             if self._fast_path(plots, cis, ctx, r_new_l, new_clusters):
                 continue
             cls = [self.clusters[ci] for ci in cis]
@@ -271,7 +320,7 @@ class _Filter:
                     cls, plots, ctx, max_hyp=st.max_global_hypotheses, count_cap=self.count_cap
                 )
             )
-        self._flush_nodes(maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan)
+        self._flush_nodes(maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, ids, tj)
         for berns, table, logw in updated:
             new_clusters.extend(
                 prune(
@@ -353,7 +402,7 @@ class _Filter:
             return True
         return False
 
-    def _flush_nodes(self, maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan):  # type: ignore[no-untyped-def]
+    def _flush_nodes(self, maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, ids, tj):  # type: ignore[no-untyped-def]
         """Write the scan's queued nodes in one compiled pass (see ``_kernels.write_nodes``).
 
         A missed detection carries the predicted per-mode moments, a
@@ -370,8 +419,8 @@ class _Filter:
         write_nodes(
             nodes.columns(), start, kinds, src, par, scan.sensor, self.motion.q,
             self.motion.initial_mu(1)[0], (tmiss, pm, pP, pmm, pmP, mu_pred),
-            (stamp, m_upd, P_upd, um, uP, mu_upd), self._pair_plot, scan.plot_ids,
-            scan.plot_time, z, R, self.settings.birth_speed_sd_m_s**2,
+            (stamp, m_upd, P_upd, um, uP, mu_upd), self._pair_plot, ids, tj, z, R,
+            self.settings.birth_speed_sd_m_s**2,
         )
 
     # -- estimates ---------------------------------------------------------------------
@@ -435,6 +484,13 @@ class _Filter:
                 lh.end_nodes = tuple(remap[list(lh.end_nodes)].tolist())
         if nodes.n > 0.5 * cap:  # mostly live: make room now
             nodes._reserve(cap - nodes.n + 1)
+
+
+def _has_close_plots(z: Array) -> bool:
+    """Whether two plots of the scan are within the widest cell distance (cheap test first)."""
+    from scipy.spatial import cKDTree
+
+    return bool(cKDTree(z).query_pairs(LADDER_M[-1], output_type="ndarray").size)
 
 
 def _finished(c: Cluster) -> bool:
