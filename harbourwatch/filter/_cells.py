@@ -40,6 +40,9 @@ IntArray = NDArray[np.int64]
 LADDER_M = (60.0, 130.0, 260.0)
 #: At most this many partitions per group (the cost driver; counted when it bites).
 MAX_PARTITIONS = 8
+#: A partition whose best assignment is this much less likely than the best partition's
+#: (relative weight) gives no children.
+PARTITION_PRUNE = 1e-3
 
 
 class CellBook:
@@ -220,6 +223,7 @@ def update_partitions(
             ln_miss_total += ln_miss[s]
             active.append((i, s))
         k = max(1, math.ceil(max_hyp * math.exp(logw_l[g])))
+        mats = []
         for cells in partitions:
             mg = len(cells)
             rloc = {c: r for r, c in enumerate(cells)}
@@ -230,8 +234,18 @@ def update_partitions(
                     r = rloc.get(c)
                     if r is not None:
                         C[r, i] = ln_miss[s] - ln_det[pair]
-            kk = 1 if mg > LARGE_GROUP_PLOTS else k
-            for cost, cols in _children(C, kk):
+            mats.append(C)
+        # the k children are shared out by each partition's best weight (its best first)
+        firsts = [_children(C, 1) for C in mats]
+        best_cost = [f[0][0] if f else math.inf for f in firsts]
+        top = min(best_cost)
+        share = [math.exp(top - c) for c in best_cost]
+        total = sum(share)
+        for cells, C, first, sh in zip(partitions, mats, firsts, share, strict=True):
+            if not first or sh < PARTITION_PRUNE:
+                continue
+            kk = 1 if len(cells) > LARGE_GROUP_PLOTS else max(1, math.ceil(k * sh / total))
+            for cost, cols in (first if kk == 1 else _children(C, kk)):
                 took = {int(col): cells[r] for r, col in enumerate(cols.tolist()) if col < nb}
                 row: list[int] = []
                 for i, h in enumerate(parent):

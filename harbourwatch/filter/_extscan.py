@@ -78,6 +78,33 @@ class ExtendedScan:
     ext_pairs: int = 0
 
 
+#: Below this speed (m/s) a vessel's course is not taken to turn its hull, and one
+#: update turns it by at most this much (rad): a ship turns slowly, a noisy course does not.
+_TURN_MIN_SPEED = 1.5
+_TURN_MAX_STEP = np.radians(3.0)
+
+
+def rotate_with_course(V: Array, prior: Array, post: Array) -> Array:
+    """Turn the extent with the change of course an update brings (a turning ship's hull turns).
+
+    ``V ← T V Tᵀ`` with ``T`` the rotation by the angle between the prior
+    and posterior velocity of ``[p_e, v_e, p_n, v_n]`` states (at most
+    :data:`_TURN_MAX_STEP`); no rotation where either speed is below
+    :data:`_TURN_MIN_SPEED`.
+    """
+    a0 = np.arctan2(prior[:, 1], prior[:, 3])
+    a1 = np.arctan2(post[:, 1], post[:, 3])
+    fast = (np.hypot(prior[:, 1], prior[:, 3]) > _TURN_MIN_SPEED) & (
+        np.hypot(post[:, 1], post[:, 3]) > _TURN_MIN_SPEED)
+    d = np.where(fast, np.clip((a1 - a0 + np.pi) % (2 * np.pi) - np.pi, -_TURN_MAX_STEP,
+                               _TURN_MAX_STEP), 0.0)  # clockwise from north
+    c, s = np.cos(d), np.sin(d)
+    T = np.empty_like(V)
+    T[:, 0, 0], T[:, 0, 1], T[:, 1, 0], T[:, 1, 1] = c, s, -s, c
+    out = T @ V @ np.swapaxes(T, 1, 2)
+    return 0.5 * (out + np.swapaxes(out, 1, 2))
+
+
 def _concat(a: tuple, b: tuple) -> tuple:  # type: ignore[type-arg]
     return tuple(np.concatenate([x, y]) for x, y in zip(a, b, strict=True))
 
@@ -173,7 +200,8 @@ def extended_scan(motion, gate, leaf, pm, pP, tmiss, pd, slot_ext, z, R, tj, ids
         lc = count_log_pmf(nn, a0[ii_], b0[ii_]) - np.log1p(-np.exp(log_no_plot(a0[ii_], b0[ii_])))
         lc = np.where(is_ext[ii_], lc, lc + math.log(EXTENDED_PRIOR))
         ll_tot = ll + lc + scatter_log_lik(nn, ZZ, Y)
-        e2 = ext_tuples(*update_extent(a0[ii_], b0[ii_], v0[ii_], V0[ii_], nn, eps, S, ZZ, Y))
+        a2, b2, v2, V2 = update_extent(a0[ii_], b0[ii_], v0[ii_], V0[ii_], nn, eps, S, ZZ, Y)
+        e2 = ext_tuples(a2, b2, v2, rotate_with_course(V2, pm[ii_], m_upd))
         base = out_pairs[0].size
         pair_ext.update(zip(range(base, base + ii_.size), e2, strict=True))
         out_pairs = _concat(out_pairs, (ii_, aug, ll_tot, stamp, m_upd, P_upd, um, uP, post))
