@@ -91,13 +91,13 @@ def _hull(plan: VesselPlan, length_m: float, beam_m: float) -> VesselPlan:
 def _launches(t0: float, until_s: float) -> list[VesselPlan]:
     return [
         _hull(_plan("launch-1", t0, 3000, -1500, 60, 5,
-                    [_go(4000, -780, 5), Leg.stop(until_s=until_s), _go(2500, -2200, 6),
-                     Leg.straight()],
+                    [_go(4000, -780, 5), Leg.stop(until_s=until_s), _go(3960, -820, 1.5),
+                     Leg.speed(6, 40), _go(2500, -2200, 6), Leg.straight()],
                     "meets launch-2 80 m apart beside the berthed ship (craft-meeting: caught)"),
               12.0, 4.0),
         _hull(_plan("launch-2", t0 + 60, 5600, -1700, 300, 5,
-                    [_go(4080, -780, 5), Leg.stop(until_s=until_s), _go(6500, -1500, 6),
-                     Leg.straight()], "meets launch-1 (craft-meeting: caught)"),
+                    [_go(4080, -780, 5), Leg.stop(until_s=until_s), _go(4120, -820, 1.5),
+                     Leg.speed(6, 40), _go(6500, -1500, 6), Leg.straight()], "meets launch-1 (craft-meeting: caught)"),
               10.0, 3.5),
     ]
 
@@ -128,7 +128,8 @@ def _vessels() -> list[VesselPlan]:
                     "180 m: passes west to east 0.8 km south of the radar at 7 kn"),
               180.0, 28.0),
         _hull(_plan("calder-oak", 0, 3500, -640, 90, 0,
-                    [Leg.stop(until_s=900), _go(3400, -1500, 3, 0.5), _go(3300, -9000, 6, 0.5),
+                    [Leg.stop(until_s=900), Leg.speed(2, 120), _go(3400, -1500, 3, 0.5),
+                     _go(3300, -9000, 6, 0.5),
                      _go(3300, -12000, 6, 0.5)],
                     "250 m: leaves the quay at 15 min, heads south out of the cover"),
               250.0, 38.0),

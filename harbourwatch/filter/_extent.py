@@ -25,6 +25,7 @@ form.
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 
 import numpy as np
 from numpy.typing import NDArray
@@ -169,12 +170,21 @@ def length_probability(v: float, V: Array, lo: float, hi: float, *, draws: int =
     """Probability that the hull length ``2 sqrt(λ_max(X))`` lies in ``[lo, hi]``, ``X ~ IW(v, V)``.
 
     Monte Carlo with a fixed seed, so the same estimate gives the same
-    probability: ``draws`` samples of ``scipy.stats.invwishart(df=v, scale=V)``.
+    probability: ``draws`` samples of ``scipy.stats.invwishart(df=v, scale=V)``
+    (kept per estimate: every rule of a run reads the same draws).
     """
+    V = np.asarray(V, float)
+    length = _length_draws(float(v), float(V[0, 0]), float(V[0, 1]), float(V[1, 1]), int(draws))
+    return float(np.mean((length >= lo) & (length <= hi)))
+
+
+@lru_cache(maxsize=4096)
+def _length_draws(v: float, v00: float, v01: float, v11: float, draws: int) -> Array:
     from scipy.stats import invwishart
 
-    X = invwishart(df=max(float(v), MIN_DOF), scale=np.asarray(V, float)).rvs(
+    X = invwishart(df=max(v, MIN_DOF), scale=np.array([[v00, v01], [v01, v11]])).rvs(
         size=draws, random_state=np.random.default_rng(20260504))
     lam = np.linalg.eigvalsh(X.reshape(draws, 2, 2))[:, 1]
-    length = 2.0 * np.sqrt(np.maximum(lam, 0.0))
-    return float(np.mean((length >= lo) & (length <= hi)))
+    out = 2.0 * np.sqrt(np.maximum(lam, 0.0))
+    out.flags.writeable = False
+    return out

@@ -175,7 +175,9 @@ def extended_scan(motion, gate, leaf, pm, pP, tmiss, pd, slot_ext, z, R, tj, ids
         tbar[c] = tj[p].mean()
         cnt[c] = len(p)
         cid[c] = ids[p[0]]
-    act = np.flatnonzero(is_ext & (pd > 0))  # a point-like vessel never takes a multi-plot cell
+    # an established point-like vessel never takes a multi-plot cell; a young one may turn out
+    # to be extended (its first plots came one per scan)
+    act = np.flatnonzero((is_ext | ~established(pP)) & (pd > 0))
     if nc and act.size:
         Rb = (Rbar + RHO * float(lam[act].max()) * np.eye(2)) / cnt[:, None, None]
         ii, cc = gate_candidates(act, mm, mP, t_leaf, motion.q_max, zbar, Rb, tbar,
@@ -231,16 +233,55 @@ def extended_scan(motion, gate, leaf, pm, pP, tmiss, pd, slot_ext, z, R, tj, ids
 #: A new vessel cannot start inside a known hull: the undetected density is taken as 0
 #: where ``(z - p)ᵀ (X̂ + P)⁻¹ (z - p)`` is below this (1.5 times the hull ellipse).
 HULL_EXCLUSION = 1.5**2
+#: Radius of a hull's circle, in half-lengths.
+HULL_CIRCLE = 1.2
 
 
-def inside_hulls(z: Array, pm: Array, pP: Array, slot_ext: dict) -> NDArray[np.bool_]:  # type: ignore[type-arg]
-    """Positions ``z (k, 2)`` inside the predicted hull of some extended slot (see above)."""
+def inside_hulls(z: Array, pm: Array, pP: Array, slot_ext: dict,  # type: ignore[type-arg]
+                 circle: NDArray[np.bool_] | None = None) -> NDArray[np.bool_]:
+    """Positions ``z (k, 2)`` inside the predicted hull of some extended slot (see above).
+
+    Where ``circle`` is set the test is the hull's circle instead, of radius
+    :data:`HULL_CIRCLE` half-lengths (a new extended vessel, or a shorter one's
+    cell, cannot lie across a longer hull whatever the hull's heading).
+    """
     out = np.zeros(z.shape[0], bool)
     for s, (_, _, v, V) in slot_ext.items():
-        C = V / (v - 3.0) + pP[s][np.ix_([0, 2], [0, 2])]
+        X = V / (v - 3.0)
+        Pp = pP[s][np.ix_([0, 2], [0, 2])]
         d = z - pm[s][[0, 2]]
-        out |= np.einsum("ki,ij,kj->k", d, inv2(C), d) < HULL_EXCLUSION
+        hit = np.einsum("ki,ij,kj->k", d, inv2(X + Pp), d) < HULL_EXCLUSION
+        if circle is not None:
+            r2 = HULL_CIRCLE**2 * float(np.linalg.eigvalsh(X)[1]) + float(np.trace(Pp))
+            hit = np.where(circle, np.einsum("ki,ki->k", d, d) < r2, hit)
+        out |= hit
     return out
+
+
+#: A point-like track is established once its velocity sd (m/s) is below this.
+ESTABLISHED_SPEED_SD = 1.0
+
+
+def established(pP: Array) -> NDArray[np.bool_]:
+    """Tracks whose velocity is known to :data:`ESTABLISHED_SPEED_SD` (not new any more)."""
+    return 0.5 * (pP[:, 1, 1] + pP[:, 3, 3]) < ESTABLISHED_SPEED_SD**2
+
+
+def cells_over_vessels(ext: ExtendedScan, pm: Array, slots: Array) -> NDArray[np.bool_]:
+    """Multi-plot cells whose new hull would cover the predicted position of one of ``slots``.
+
+    Two vessels cannot share a place, so such a cell cannot start a new
+    vessel (two small craft side by side are not one large one).
+    """
+    m = ext.z.shape[0] - len(ext.book.cells)
+    out = np.zeros(len(ext.book.cells), bool)
+    if not slots.size or not out.size:
+        return out
+    a, b, v, V = ext_arrays([ext.born_ext[m + c] for c in range(out.size)])
+    Xi = inv2(iw_mean(v, V))
+    d = pm[slots][:, [0, 2]][None, :, :] - ext.z[m:][:, None, :]
+    q = np.einsum("cki,cij,ckj->ck", d, Xi, d)
+    return (q < 1.0).any(axis=1)
 
 
 #: Log-weight given to a vessel taking plots inside the hull of a longer vessel.
@@ -263,12 +304,10 @@ def overlap_penalty(ii: IntArray, jj: IntArray, ll: Array, z: Array, pm: Array, 
     own = np.zeros(ii.size)
     ext_of = {s: lam[s] for s in slot_ext}
     own = np.array([ext_of.get(int(i), 0.0) for i in ii.tolist()])
-    for s, (_, _, v, V) in slot_ext.items():
+    for s, ext in slot_ext.items():
         if r[s] <= 0.5:
             continue
-        C = V / (v - 3.0) + pP[s][np.ix_([0, 2], [0, 2])]
-        d = z[jj] - pm[s][[0, 2]]
-        inside = np.einsum("ki,ij,kj->k", d, inv2(C), d) < HULL_EXCLUSION
+        inside = inside_hulls(z[jj], pm, pP, {s: ext}, circle=own > 0.0)
         hit = inside & (bern[ii] != bern[s]) & (own < lam[s])
         ll[hit] += OVERLAP_LOG_PENALTY
     return ll

@@ -72,7 +72,14 @@ from ._association import (
 )
 from ._cells import LADDER_M, cell_groups, group_partitions, update_partitions
 from ._estimate import build_output
-from ._extscan import extended_scan, inside_hulls, overlap_penalty, predict_slots
+from ._extscan import (
+    cells_over_vessels,
+    established,
+    extended_scan,
+    inside_hulls,
+    overlap_penalty,
+    predict_slots,
+)
 from ._gating import MIN_STEP_S, chi2_gate, cover_detection, gate_pairs
 from ._hypotheses import (
     Bernoulli,
@@ -264,12 +271,14 @@ class _Filter:
         )
         e = np.where(in_range, sensor.detection_probability, 0.0) * self.ppp.density(z)
         if slot_ext:  # no vessel starts inside a known hull
-            e[inside_hulls(z, pm, pP, slot_ext)] = 0.0
+            e[inside_hulls(z, pm, pP, slot_ext, circle=np.arange(z.shape[0]) >= m)] = 0.0
         lam = sensor.clutter_intensity
         w_new = np.maximum(e + lam, 1e-300)  # > 0: every plot can always be clutter
         ln_new = np.log(w_new)
         r_new = e / w_new
         if ext is not None and ext.book.cells:  # a multi-plot cell: a new extended vessel
+            point = np.flatnonzero((r > 0.5) & (pd_point > 0) & established(pP))
+            e[m:][cells_over_vessels(ext, pm, point)] = 0.0
             ln_new[m:] = np.log(np.maximum(e[m:], 1e-300)) + ext.cell_ln_lik
             r_new[m:] = 1.0
         self.timers["gate"] += _time.perf_counter() - t0
