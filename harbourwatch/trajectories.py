@@ -153,6 +153,7 @@ class AsSeenTable:
     mean: Array  # (N, 4)
     sd: Array  # (N,) position sd, m
     existence: Array  # (N,)
+    length: Array | None = None  # (N,) hull length as known then, m (NaN: point-like); optional
 
     @classmethod
     def empty(cls) -> AsSeenTable:
@@ -281,6 +282,12 @@ def as_seen_csv_text(tset: TrajectorySet) -> str:
         return ",".join(AS_SEEN_COLUMNS) + "\n"
     lat, lon, sog, cog = _sog_cog(tset.frame, a.mean)
     columns = [format_utc_list(a.time), a.track, lat, lon, sog, cog, a.sd, a.existence]
+    if a.length is not None and np.isfinite(a.length).any():  # optional, as in tracks.csv
+        text = np.char.mod("%.1f", a.length).astype(object)
+        text[~np.isfinite(a.length)] = ""
+        columns.append(text.tolist())
+        return _csv_text(AS_SEEN_COLUMNS + ("length_m",), columns,
+                         [None, None, 7, 7, 2, 1, 1, 4, None])
     return _csv_text(AS_SEEN_COLUMNS, columns, [None, None, 7, 7, 2, 1, 1, 4])
 
 

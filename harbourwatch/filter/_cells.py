@@ -33,7 +33,9 @@ from scipy.spatial import cKDTree
 from ._association import LARGE_GROUP_PLOTS, ScanContext, _children, logsumexp, merge_clusters
 from ._hypotheses import Bernoulli, Cluster, LocalHyp
 
-__all__ = ["LADDER_M", "CellBook", "scan_partitions", "cell_groups", "update_partitions"]
+__all__ = [
+    "LADDER_M", "CellBook", "scan_partitions", "cell_groups", "update_partitions", "has_close_plots",
+]
 
 IntArray = NDArray[np.int64]
 #: Distance thresholds of the distance partitioning (m).
@@ -272,3 +274,8 @@ def update_partitions(
     out = [Bernoulli(b.bid, lhs) for b, lhs in zip(berns, new_lhs, strict=True)]
     out.extend(ctx.born(c) for c in all_cells)
     return out, rows, weights
+
+
+def has_close_plots(z: NDArray[np.float64]) -> bool:
+    """Whether two plots of the scan are within the widest cell distance (cheap test first)."""
+    return bool(cKDTree(z).query_pairs(LADDER_M[-1], output_type="ndarray").size)

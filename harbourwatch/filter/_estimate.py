@@ -11,12 +11,14 @@ the missed detections after it carry no information about where it went.
 
 from __future__ import annotations
 
+import math
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from ..trajectories import AsSeenTable, Trajectory
 from . import FilterOutput
+from ._extent import hull_length
 from ._kernels import rts_smooth_chain
 
 if TYPE_CHECKING:
@@ -94,6 +96,7 @@ def build_output(filt: _Filter) -> FilterOutput:
             mean=np.concatenate([r[2] for r in filt.as_seen]),
             sd=np.concatenate([r[3] for r in filt.as_seen]),
             existence=np.concatenate([r[4] for r in filt.as_seen]),
+            length=np.concatenate([r[5] for r in filt.as_seen]),
         )
     else:
         as_seen = AsSeenTable.empty()
@@ -108,3 +111,50 @@ def build_output(filt: _Filter) -> FilterOutput:
         "nodes": nodes.n,
     }
     return FilterOutput(trajectories=trajectories, as_seen=as_seen, stats=stats, log=list(filt.log))
+
+
+def record_as_seen(self: _Filter, tk: float) -> None:
+    """Record the cheap filtered estimate of this moment (methods note §D).
+
+    The leaf of each Bernoulli of the best global hypothesis with ``r``
+    above the threshold whose most likely end is "alive" and recent.
+    """
+    thr = self.settings.existence_threshold
+    oldest = tk - self.settings.as_seen_window_s
+    t_node = self.nodes.t.item
+    bids: list[int] = []
+    leaves: list[int] = []
+    rs: list[float] = []
+    lengths: list[float] = []
+    for c in self.clusters:
+        berns = c.berns
+        if c.logw.size == 1:
+            row = [c.table.item(0)] if len(berns) == 1 else c.table[0].tolist()
+        else:
+            lw = c.logw.tolist()
+            row = c.table[lw.index(max(lw))].tolist()  # the first best, as np.argmax
+        for b, h in zip(berns, row, strict=True):
+            if h < 0:
+                continue
+            lh = b.lhs[h]
+            if lh.frozen or lh.r <= thr or (lh.end_p and max(lh.end_p) > lh.alive):
+                continue
+            if t_node(lh.node) < oldest:
+                continue
+            bids.append(b.bid)
+            leaves.append(lh.node)
+            rs.append(lh.r)
+            lengths.append(math.nan if lh.ext is None else hull_length(lh.ext))
+    if bids:
+        idx = np.array(leaves, np.int64)
+        P = self.nodes.P[idx]
+        self.as_seen.append(
+            (
+                tk,
+                np.array(bids, np.int64),
+                self.nodes.m[idx],
+                np.sqrt(0.5 * (P[:, 0, 0] + P[:, 2, 2])),
+                np.array(rs),
+                np.array(lengths),
+            )
+        )

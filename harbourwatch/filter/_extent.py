@@ -41,7 +41,7 @@ RATE_PRIOR = (1.5, 0.5)
 EXTENT_PRIOR_SEMI_AXIS_M = 75.0
 EXTENT_PRIOR_DOF = 4.0
 #: Prior probability that a vessel is extended (weights the extended births).
-EXTENDED_PRIOR = 0.1
+EXTENDED_PRIOR = 0.01
 #: Forgetting time constants of the rate and the extent (s), methods note §9.4.
 RATE_TAU_S = 60.0
 EXTENT_TAU_S = 120.0
@@ -164,6 +164,13 @@ def hull_size(v: float, V: Array) -> tuple[float, float, float]:
     e, n = vec[0, 1], vec[1, 1]
     heading = math.degrees(math.atan2(e, n)) % 180.0
     return 2.0 * math.sqrt(max(w[1], 0.0)), 2.0 * math.sqrt(max(w[0], 0.0)), heading
+
+
+def hull_length(ext: tuple[float, ...]) -> float:
+    """Length ``2 sqrt(λ_max(E[X]))`` of an extent tuple ``(α, β, v, V00, V01, V11)``."""
+    _, _, v, a, b, c = ext
+    lam = 0.5 * (a + c) + math.hypot(0.5 * (a - c), b)
+    return 2.0 * math.sqrt(max(lam, 0.0) / (v - 3.0))
 
 
 def length_probability(v: float, V: Array, lo: float, hi: float, *, draws: int = 400) -> float:

@@ -80,27 +80,29 @@ class ExtendedScan:
 
 #: Below this speed (m/s) a vessel's course is not taken to turn its hull, and one
 #: update turns it by at most this much (rad): a ship turns slowly, a noisy course does not.
-_TURN_MIN_SPEED = 1.5
+_TURN_MIN_SPEED = 1.0
 _TURN_MAX_STEP = np.radians(3.0)
 
 
 def rotate_with_course(V: Array, prior: Array, post: Array) -> Array:
-    """Turn the extent with the change of course an update brings (a turning ship's hull turns).
+    """Turn the extent towards the course: a moving ship's hull lies along its course.
 
-    ``V ← T V Tᵀ`` with ``T`` the rotation by the angle between the prior
-    and posterior velocity of ``[p_e, v_e, p_n, v_n]`` states (at most
-    :data:`_TURN_MAX_STEP`); no rotation where either speed is below
-    :data:`_TURN_MIN_SPEED`.
+    ``V ← T V Tᵀ`` with ``T`` the rotation that brings the extent's main axis
+    towards the posterior course of ``[p_e, v_e, p_n, v_n]`` states, by at
+    most :data:`_TURN_MAX_STEP` per update (a ship turns slowly, a noisy
+    course does not turn it); no rotation below :data:`_TURN_MIN_SPEED`, or
+    for a round extent. ``prior`` is kept for the signature (unused).
     """
-    a0 = np.arctan2(prior[:, 1], prior[:, 3])
-    a1 = np.arctan2(post[:, 1], post[:, 3])
-    fast = (np.hypot(prior[:, 1], prior[:, 3]) > _TURN_MIN_SPEED) & (
-        np.hypot(post[:, 1], post[:, 3]) > _TURN_MIN_SPEED)
-    d = np.where(fast, np.clip((a1 - a0 + np.pi) % (2 * np.pi) - np.pi, -_TURN_MAX_STEP,
-                               _TURN_MAX_STEP), 0.0)  # clockwise from north
-    c, s = np.cos(d), np.sin(d)
+    a, b, c = V[:, 0, 0], V[:, 0, 1], V[:, 1, 1]
+    # main axis angle clockwise from north (x = east, y = north): eigenvector of the larger root
+    axis = 0.5 * np.arctan2(2.0 * b, c - a)
+    course = np.arctan2(post[:, 1], post[:, 3])
+    d = (course - axis + 0.5 * np.pi) % np.pi - 0.5 * np.pi  # the axis has no sense: mod 180
+    fast = np.hypot(post[:, 1], post[:, 3]) > _TURN_MIN_SPEED
+    d = np.where(fast, np.clip(d, -_TURN_MAX_STEP, _TURN_MAX_STEP), 0.0)
+    cs, sn = np.cos(d), np.sin(d)
     T = np.empty_like(V)
-    T[:, 0, 0], T[:, 0, 1], T[:, 1, 0], T[:, 1, 1] = c, s, -s, c
+    T[:, 0, 0], T[:, 0, 1], T[:, 1, 0], T[:, 1, 1] = cs, sn, -sn, cs
     out = T @ V @ np.swapaxes(T, 1, 2)
     return 0.5 * (out + np.swapaxes(out, 1, 2))
 
@@ -267,7 +269,7 @@ def established(pP: Array) -> NDArray[np.bool_]:
     return 0.5 * (pP[:, 1, 1] + pP[:, 3, 3]) < ESTABLISHED_SPEED_SD**2
 
 
-def cells_over_vessels(ext: ExtendedScan, pm: Array, slots: Array) -> NDArray[np.bool_]:
+def cells_over_vessels(ext: ExtendedScan, pm: Array, slots: IntArray) -> NDArray[np.bool_]:
     """Multi-plot cells whose new hull would cover the predicted position of one of ``slots``.
 
     Two vessels cannot share a place, so such a cell cannot start a new

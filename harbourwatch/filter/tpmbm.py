@@ -70,8 +70,8 @@ from ._association import (
     update_group,
     update_single,
 )
-from ._cells import LADDER_M, cell_groups, group_partitions, update_partitions
-from ._estimate import build_output
+from ._cells import cell_groups, group_partitions, has_close_plots, update_partitions
+from ._estimate import build_output, record_as_seen
 from ._extscan import (
     cells_over_vessels,
     established,
@@ -149,7 +149,7 @@ class _Filter:
         self.scan_count = 0
         self.scan_index = 0
         self.last_time = -math.inf
-        self.as_seen: list[tuple[float, NDArray[np.int64], Array, Array, Array]] = []
+        self.as_seen: list[tuple[float, NDArray[np.int64], Array, Array, Array, Array]] = []
 
     # -- bookkeeping -------------------------------------------------------------------
     def count_cap(self, name: str) -> None:
@@ -245,7 +245,7 @@ class _Filter:
         pairs = gate_pairs(self.gate, self.motion, leaf_mm, leaf_mP, leaf_mu, pd_point, t_leaf,
                            z, R, tj)
         ext = None
-        if ext_slots or (m > 1 and _has_close_plots(z)):
+        if ext_slots or (m > 1 and has_close_plots(z)):
             ext = extended_scan(self.motion, self.gate, (leaf_mm, leaf_mP, leaf_mu, t_leaf), pm,
                                 pP, tmiss, pd, slot_ext, z, R, tj, ids, pairs, slot_bern)
             if ext.book.cells or ext.ext_pairs:
@@ -356,7 +356,7 @@ class _Filter:
         nb = sum(len(c.berns) for c in self.clusters)
         self.max_berns = max(self.max_berns, nb)
         self.max_hyps = max([self.max_hyps] + [c.logw.size for c in new_clusters])
-        self._record_as_seen(tk)
+        record_as_seen(self, tk)
         self._maybe_compact()
         self.timers["bookkeeping"] += _time.perf_counter() - t0
 
@@ -433,49 +433,6 @@ class _Filter:
         )
 
     # -- estimates ---------------------------------------------------------------------
-    def _record_as_seen(self, tk: float) -> None:
-        """Record the cheap filtered estimate of this moment (methods note §D).
-
-        The leaf of each Bernoulli of the best global hypothesis with ``r``
-        above the threshold whose most likely end is "alive" and recent.
-        """
-        thr = self.settings.existence_threshold
-        oldest = tk - self.settings.as_seen_window_s
-        t_node = self.nodes.t.item
-        bids: list[int] = []
-        leaves: list[int] = []
-        rs: list[float] = []
-        for c in self.clusters:
-            berns = c.berns
-            if c.logw.size == 1:
-                row = [c.table.item(0)] if len(berns) == 1 else c.table[0].tolist()
-            else:
-                lw = c.logw.tolist()
-                row = c.table[lw.index(max(lw))].tolist()  # the first best, as np.argmax
-            for b, h in zip(berns, row, strict=True):
-                if h < 0:
-                    continue
-                lh = b.lhs[h]
-                if lh.frozen or lh.r <= thr or (lh.end_p and max(lh.end_p) > lh.alive):
-                    continue
-                if t_node(lh.node) < oldest:
-                    continue
-                bids.append(b.bid)
-                leaves.append(lh.node)
-                rs.append(lh.r)
-        if bids:
-            idx = np.array(leaves, np.int64)
-            P = self.nodes.P[idx]
-            self.as_seen.append(
-                (
-                    tk,
-                    np.array(bids, np.int64),
-                    self.nodes.m[idx],
-                    np.sqrt(0.5 * (P[:, 0, 0] + P[:, 2, 2])),
-                    np.array(rs),
-                )
-            )
-
     def _maybe_compact(self) -> None:
         """Drop nodes no hypothesis can reach any more, instead of growing the store."""
         nodes = self.nodes
@@ -493,13 +450,6 @@ class _Filter:
                 lh.end_nodes = tuple(remap[list(lh.end_nodes)].tolist())
         if nodes.n > 0.5 * cap:  # mostly live: make room now
             nodes._reserve(cap - nodes.n + 1)
-
-
-def _has_close_plots(z: Array) -> bool:
-    """Whether two plots of the scan are within the widest cell distance (cheap test first)."""
-    from scipy.spatial import cKDTree
-
-    return bool(cKDTree(z).query_pairs(LADDER_M[-1], output_type="ndarray").size)
 
 
 def _finished(c: Cluster) -> bool:
