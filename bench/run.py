@@ -106,10 +106,11 @@ def _load_time(path: Path) -> float | None:
 
 def main() -> None:
     OUT.mkdir(parents=True, exist_ok=True)
-    from bench import accuracy, bench_score
+    from bench import accuracy, bench_score, large_vessels
 
     accuracy.main()
     bench_score.main()
+    large_vessels.main()
     throughput()
 
 

@@ -139,6 +139,7 @@ def test_one_scan_hypothesis_weights_match_enumeration():
         initial_vessels=40.0,
         birth_speed_sd_m_s=3.0,
         manoeuvre_accel_psd_m2_s3=None,  # one motion mode: plain Gaussian likelihoods
+        extended_vessels=False,  # the point-target enumeration (cells: tests/test_extent.py)
     )
     f = _Filter([sensor], st, [])
     f.process(_scan(0, 10.0, [[1000.0, 1000.0], [1060.0, 1000.0]], [0, 1]), 0)

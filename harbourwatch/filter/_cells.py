@@ -246,7 +246,11 @@ def update_partitions(
         for cells, C, first, sh in zip(partitions, mats, firsts, share, strict=True):
             if not first or sh < PARTITION_PRUNE:
                 continue
-            kk = 1 if len(cells) > LARGE_GROUP_PLOTS else max(1, math.ceil(k * sh / total))
+            kk = max(1, math.ceil(k * sh / total))
+            if len(cells) > LARGE_GROUP_PLOTS:  # a squall of plots: the best assignment only
+                if kk > 1:
+                    count_cap("large_group")
+                kk = 1
             for cost, cols in (first if kk == 1 else _children(C, kk)):
                 took = {int(col): cells[r] for r, col in enumerate(cols.tolist()) if col < nb}
                 row: list[int] = []

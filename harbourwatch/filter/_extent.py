@@ -41,7 +41,7 @@ RATE_PRIOR = (1.5, 0.5)
 EXTENT_PRIOR_SEMI_AXIS_M = 75.0
 EXTENT_PRIOR_DOF = 4.0
 #: Prior probability that a vessel is extended (weights the extended births).
-EXTENDED_PRIOR = 0.01
+EXTENDED_PRIOR = 0.1
 #: Forgetting time constants of the rate and the extent (s), methods note §9.4.
 RATE_TAU_S = 60.0
 EXTENT_TAU_S = 120.0

@@ -78,28 +78,29 @@ class ExtendedScan:
     ext_pairs: int = 0
 
 
+#: Extra prior weight of a new extended vessel from a cell of only two plots (as often two
+#: small craft side by side as one hull).
+PAIR_BIRTH = 1e-6
 #: Below this speed (m/s) a vessel's course is not taken to turn its hull, and one
 #: update turns it by at most this much (rad): a ship turns slowly, a noisy course does not.
-_TURN_MIN_SPEED = 1.0
+_TURN_MIN_SPEED = 1.5
 _TURN_MAX_STEP = np.radians(3.0)
 
 
 def rotate_with_course(V: Array, prior: Array, post: Array) -> Array:
-    """Turn the extent towards the course: a moving ship's hull lies along its course.
+    """Turn the extent with the change of course an update brings (a turning ship's hull turns).
 
-    ``V ← T V Tᵀ`` with ``T`` the rotation that brings the extent's main axis
-    towards the posterior course of ``[p_e, v_e, p_n, v_n]`` states, by at
-    most :data:`_TURN_MAX_STEP` per update (a ship turns slowly, a noisy
-    course does not turn it); no rotation below :data:`_TURN_MIN_SPEED`, or
-    for a round extent. ``prior`` is kept for the signature (unused).
+    ``V ← T V Tᵀ`` with ``T`` the rotation by the angle between the prior
+    and posterior velocity of ``[p_e, v_e, p_n, v_n]`` states, at most
+    :data:`_TURN_MAX_STEP` per update; no rotation where a speed is below
+    :data:`_TURN_MIN_SPEED`: a noisy course does not turn a hull.
     """
-    a, b, c = V[:, 0, 0], V[:, 0, 1], V[:, 1, 1]
-    # main axis angle clockwise from north (x = east, y = north): eigenvector of the larger root
-    axis = 0.5 * np.arctan2(2.0 * b, c - a)
-    course = np.arctan2(post[:, 1], post[:, 3])
-    d = (course - axis + 0.5 * np.pi) % np.pi - 0.5 * np.pi  # the axis has no sense: mod 180
-    fast = np.hypot(post[:, 1], post[:, 3]) > _TURN_MIN_SPEED
-    d = np.where(fast, np.clip(d, -_TURN_MAX_STEP, _TURN_MAX_STEP), 0.0)
+    a0 = np.arctan2(prior[:, 1], prior[:, 3])
+    a1 = np.arctan2(post[:, 1], post[:, 3])
+    fast = (np.hypot(prior[:, 1], prior[:, 3]) > _TURN_MIN_SPEED) & (
+        np.hypot(post[:, 1], post[:, 3]) > _TURN_MIN_SPEED)
+    d = (a1 - a0 + np.pi) % (2 * np.pi) - np.pi
+    d = np.where(fast, np.clip(d, -_TURN_MAX_STEP, _TURN_MAX_STEP), 0.0)  # clockwise from north
     cs, sn = np.cos(d), np.sin(d)
     T = np.empty_like(V)
     T[:, 0, 0], T[:, 0, 1], T[:, 1, 0], T[:, 1, 1] = cs, sn, -sn, cs
@@ -220,7 +221,7 @@ def extended_scan(motion, gate, leaf, pm, pP, tmiss, pd, slot_ext, z, R, tj, ids
         pa, pb, pv, pV = prior_extent(nc)
         Y0 = RHO * iw_mean(pv, pV) + Rbar
         cell_ll = (math.log(EXTENDED_PRIOR) + count_log_pmf(cnt, pa, pb)
-                   + scatter_log_lik(cnt, Zc, Y0))
+                   + scatter_log_lik(cnt, Zc, Y0) + np.where(cnt < 3, math.log(PAIR_BIRTH), 0.0))
         ea, eb, ev, eV = update_extent(pa, pb, pv, pV, cnt, np.zeros((nc, 2)),
                                        np.broadcast_to(np.eye(2), (nc, 2, 2)).copy(), Zc, Y0)
         Rinit = (RHO * iw_mean(ev, eV) + Rbar) / cnt[:, None, None]
