@@ -64,7 +64,7 @@ def _owner(tracks: dict, t: float, lat: float, lon: float, limit: float = 100.0)
 
 
 def _run(scenario: str) -> tuple[Path, Path, float]:
-    from harbourwatch.simulate import simulate_to_dir
+    from harbourwatch import simulate_to_dir
 
     feed_dir = OUT / scenario
     simulate_to_dir(scenario, feed_dir)
@@ -82,7 +82,7 @@ def _run(scenario: str) -> tuple[Path, Path, float]:
 
 
 def main() -> None:
-    from harbourwatch.scoring import score_files
+    from harbourwatch import score_files
 
     print("== large vessels: scenario 'quay' (5 ships of 180-340 m, 6 small craft, 1 h) "
           "and its point twin 'quay-points'")

@@ -11,7 +11,7 @@ from hypothesis import strategies as st
 from scipy import stats
 
 from harbourwatch.filter._cells import CellBook, scan_partitions
-from harbourwatch.filter._extent import (
+from harbourwatch.models.extent import (
     RHO,
     count_log_pmf,
     hull_size,
@@ -26,6 +26,7 @@ from harbourwatch.filter._extent import (
 )
 
 
+@settings(deadline=None)
 @given(n=st.integers(0, 40), alpha=st.floats(0.05, 200.0), beta=st.floats(0.01, 100.0))
 def test_count_likelihood_is_scipy_negative_binomial(n: int, alpha: float, beta: float) -> None:
     # the gamma-Poisson mixture is the negative binomial r = α, p = β/(β+1)
@@ -37,6 +38,7 @@ def test_count_likelihood_is_scipy_negative_binomial(n: int, alpha: float, beta:
                                                                          beta / (beta + 1.0)))
 
 
+@settings(deadline=None)
 @given(v=st.floats(3.5, 500.0), a=st.floats(10.0, 1e5), c=st.floats(10.0, 1e5),
        rho=st.floats(-0.95, 0.95))
 def test_inverse_wishart_mean_is_scipys(v: float, a: float, c: float, rho: float) -> None:
@@ -58,6 +60,7 @@ def test_forgetting_keeps_the_mean_and_lowers_the_confidence() -> None:
     assert a[0] < 12.0
 
 
+@settings(deadline=None)
 @given(a=st.floats(1.0, 1e5), c=st.floats(1.0, 1e5), rho=st.floats(-0.99, 0.99))
 def test_square_root_and_inverse_of_2x2(a: float, c: float, rho: float) -> None:
     # closed forms against numpy's matrix product and solve (computed by hand, checked here)

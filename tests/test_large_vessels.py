@@ -10,10 +10,10 @@ import numpy as np
 import pytest
 from pyproj import Geod
 
-from harbourwatch._simengine import hull_plot_rate
 from harbourwatch.cli import main
 from harbourwatch.rules import RULE_SCHEMAS
-from harbourwatch.simulate import SCENARIOS, simulate, simulate_to_dir
+from harbourwatch.sim import SCENARIOS, simulate, simulate_to_dir
+from harbourwatch.sim.engine import hull_plot_rate
 
 _GEOD = Geod(ellps="WGS84")
 

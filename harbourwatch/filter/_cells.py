@@ -30,8 +30,14 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 
-from ._association import LARGE_GROUP_PLOTS, ScanContext, _children, logsumexp, merge_clusters
-from ._hypotheses import Bernoulli, Cluster, LocalHyp
+from harbourwatch.filter._association import (
+    LARGE_GROUP_PLOTS,
+    ScanContext,
+    _children,
+    logsumexp,
+    merge_clusters,
+)
+from harbourwatch.filter._hypotheses import Bernoulli, Cluster, LocalHyp
 
 __all__ = [
     "LADDER_M", "CellBook", "scan_partitions", "cell_groups", "update_partitions", "has_close_plots",

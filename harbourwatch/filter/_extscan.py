@@ -27,8 +27,10 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
-from ._cells import CellBook, scan_partitions
-from ._extent import (
+from harbourwatch.filter._cells import CellBook, scan_partitions
+from harbourwatch.filter._gating import MIN_STEP_S
+from harbourwatch.filter._kernels import gate_candidates
+from harbourwatch.models.extent import (
     EXTENDED_PRIOR,
     RHO,
     count_log_pmf,
@@ -39,8 +41,6 @@ from ._extent import (
     scatter_log_lik,
     update_extent,
 )
-from ._gating import MIN_STEP_S
-from ._kernels import gate_candidates
 
 Array = NDArray[np.float64]
 IntArray = NDArray[np.int64]
@@ -323,7 +323,7 @@ def predict_slots(lhs: list, ext_slots: list[int], dt: Array, pd: Array  # type:
     The detection probability of an extended slot becomes
     ``p_D (1 - (β/(β+1))^α)``: detected and giving at least one plot.
     """
-    from ._extent import predict_extent
+    from harbourwatch.models.extent import predict_extent
 
     a, b, v, V = ext_arrays([lhs[s].ext for s in ext_slots])
     idx = np.asarray(ext_slots, np.int64)

@@ -7,8 +7,8 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 if TYPE_CHECKING:
-    from ._rule_kinds import RuleKind
-    from .trajectories import Trajectory
+    from harbourwatch.rules.kinds import RuleKind
+    from harbourwatch.trajectories import Trajectory
 
 __all__ = ["size_probability"]
 
@@ -29,7 +29,7 @@ def size_probability(kind: RuleKind, traj: Trajectory) -> float:
         return 1.0
     if traj.extent is None:
         return 1.0 if lo <= 0.0 else 0.0
-    from .filter._extent import length_probability
+    from harbourwatch.models.extent import length_probability
 
     _, _, v, v00, v01, v11 = traj.extent
     return length_probability(v, np.array([[v00, v01], [v01, v11]]), lo, hi)

@@ -14,9 +14,10 @@ from collections.abc import Callable
 
 import numpy as np
 
-from .config import SensorConfig
-from .geodesy import LocalFrame
-from .simulate import Leg, Scenario, ScenarioSpec, SimSensor, VesselPlan, arpa_sigmas
+from harbourwatch.io.records import SensorConfig
+from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.sim.engine import arpa_sigmas
+from harbourwatch.sim.model import Leg, Scenario, ScenarioSpec, SimSensor, VesselPlan
 
 __all__ = ["SCENARIOS", "PORT_CALDER_ORIGIN", "port_calder_zones_geojson", "PORT_CALDER_RULES"]
 
@@ -382,10 +383,3 @@ SCENARIOS: dict[str, ScenarioSpec] = {
                                  "model, six vessels on steady legs"),
     )
 }
-
-# the East Quay scenes (large ships) live in their own module, which imports the helpers above
-from ._scenario_quay import QUAY_SPECS  # noqa: E402
-
-for _name, _build_fn, _seed, _dur, _text in QUAY_SPECS:
-    SCENARIOS[_name] = ScenarioSpec(name=_name, build=_build_fn, default_seed=_seed,
-                                    default_duration_s=_dur, description=_text)

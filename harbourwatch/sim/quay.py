@@ -17,8 +17,16 @@ from collections.abc import Callable
 
 import numpy as np
 
-from ._scenarios import _FRAME, START_EPOCH_S, _go, _plan, _rect, _sensor
-from .simulate import Leg, Scenario, SimSensor, VesselPlan
+from harbourwatch.sim.model import Leg, Scenario, ScenarioSpec, SimSensor, VesselPlan
+from harbourwatch.sim.scenarios import (
+    _FRAME,
+    SCENARIOS,
+    START_EPOCH_S,
+    _go,
+    _plan,
+    _rect,
+    _sensor,
+)
 
 __all__ = ["QUAY_RULES", "quay_zones_geojson", "QUAY_SPECS"]
 
@@ -191,3 +199,8 @@ QUAY_SPECS: tuple[tuple[str, Callable[[int, float | None], Scenario], int, float
     ("quay-meeting", _meeting, 11, 540.0,
      "9 min: two launches meet 80 m apart beside a berthed 300 m ship"),
 )
+
+# registered with the built-in scenarios (``harbourwatch.sim`` imports this module)
+for _name, _build_fn, _seed, _dur, _text in QUAY_SPECS:
+    SCENARIOS[_name] = ScenarioSpec(name=_name, build=_build_fn, default_seed=_seed,
+                                    default_duration_s=_dur, description=_text)
