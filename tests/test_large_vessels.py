@@ -138,3 +138,19 @@ def test_two_launches_beside_a_ship_stay_two_and_meet(meeting_run: tuple[Path, P
     ship = [r for r in tracks if r["track"] not in owners.values()]
     assert {float(t["length_m"]) for t in truth if t["track"] == "calder-star"} == {300.0}
     assert float(ship[-1]["length_m"]) == pytest.approx(300.0, rel=0.2)
+
+
+def test_incident_page_states_the_ship_size(meeting_run: tuple[Path, Path]) -> None:
+    _, out = meeting_run
+    alerts = _rows(out / "alerts.csv")
+    tracks = _rows(out / "tracks.csv")
+    k = next(i for i, a in enumerate(alerts) if a["rule"] == "quay-entry")
+    ship = alerts[k]["track"]
+    length = float(next(r["length_m"] for r in tracks if r["track"] == ship))
+    pages = sorted((out / "incidents").glob("*.html"))
+    text = next(p.read_text() for p in pages if f"Alert {k + 1}:" in p.read_text())
+    assert f"hull about {length:.0f} m" in text
+    # the launches' meeting page names no size: both are point-like
+    m = next(i for i, a in enumerate(alerts) if a["rule"] == "craft-meeting")
+    text = next(p.read_text() for p in pages if f"Alert {m + 1}:" in p.read_text())
+    assert "hull about" not in text

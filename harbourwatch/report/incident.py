@@ -13,7 +13,13 @@ from harbourwatch.io.timefmt import format_clock, format_utc_one
 from harbourwatch.report import charts
 from harbourwatch.report._data import state_index, track_latlon
 from harbourwatch.report._html import esc, esc_tooltip, fmt_prob
-from harbourwatch.report._layers import add_track, add_zones, ellipse_latlon, zone_label
+from harbourwatch.report._layers import (
+    add_track,
+    add_zones,
+    ellipse_latlon,
+    size_text,
+    zone_label,
+)
 from harbourwatch.report._mapbase import PointLayer, new_map, render_parts, round5
 from harbourwatch.report._page import document
 from harbourwatch.report._style import PALETTE
@@ -194,10 +200,16 @@ def incident_html(inputs: ReportInputs, index: int) -> str:
 
     sd0 = ell[0][4] if ell else None
     text = narrative(a, rule=rule, zone=zone, n_plots=n_plots if trs else None, sd_m=sd0)
+    sizes: dict[str, str] = {}
+    if any(tr.extent is not None for _, tr in trs):  # large vessels: say how large
+        sizes = {tr.id: size_text(tr) for _, tr in trs}
+        text += " Estimated size: " + "; ".join(f"{k}: {v}" for k, v in sizes.items()) + "."
     facts = [
         ("rule", f"{a.rule} ({a.kind})"),
         ("trajectory", a.track),
+        ("size", sizes.get(a.track, "")),
         ("other trajectory", a.other_track),
+        ("other size", sizes.get(a.other_track, "") if a.other_track else ""),
         ("zone", zone_label(zone) if zone is not None else a.zone),
         ("start", format_utc_one(a.start)),
         ("end", format_utc_one(a.end)),
