@@ -134,9 +134,10 @@ def main() -> None:
             errs.append(abs(float(est) - length) / length if est else 1.0)
             if j == k:
                 _line(f"  {name} ({length:.0f} m), 2 min in cover", f"{est or 'none'} m")
-        _line(f"  {name} at the end (tracks.csv)",
-              f"{tracks[_owner(tracks, float(ts[-1]), float(la[-1]), float(lo[-1]), 150.0) or ''][3][0].get('length_m', '')} m"
-              if _owner(tracks, float(ts[-1]), float(la[-1]), float(lo[-1]), 150.0) else "none")
+        j = max(0, ts.size - 31)  # a minute before its last truth row
+        tid = _owner(tracks, float(ts[j]), float(la[j]), float(lo[j]), 150.0)
+        _line(f"  {name}: its trajectory's size (tracks.csv)",
+              f"{tracks[tid][3][0].get('length_m', '')} m" if tid else "none")
     errs_a = np.array(errs)
     _line("length error from 2 min in cover (ships 100-350 m)",
           f"median {100 * np.median(errs_a):.1f} %, within 20 %: {100 * np.mean(errs_a <= 0.2):.0f} % "

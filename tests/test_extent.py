@@ -171,3 +171,24 @@ def test_partitions_never_drop_or_duplicate_a_plot(data: st.DataObject, m: int) 
         assert plots == list(range(m))  # each plot exactly once
         keys.add(tuple(p))
     assert len(keys) == len(parts)  # no partition twice
+
+
+@settings(max_examples=80, deadline=None)
+@given(data=st.data(), m=st.integers(0, 30))
+def test_close_plot_test_matches_connected_components(data: st.DataObject, m: int) -> None:
+    # reference: scipy's connected components of the plots within the widest cell distance
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+    from scipy.spatial import cKDTree
+
+    from harbourwatch.filter._cells import LADDER_M, has_close_plots
+
+    xy = data.draw(st.lists(st.tuples(st.floats(0, 1500), st.floats(0, 1500)),
+                            min_size=m, max_size=m))
+    z = np.array(xy, float).reshape(m, 2)
+    ref = False
+    if m:
+        p = cKDTree(z).query_pairs(LADDER_M[-1], output_type="ndarray")
+        g = coo_matrix((np.ones(len(p)), (p[:, 0], p[:, 1])), shape=(m, m))
+        ref = bool((np.bincount(connected_components(g, directed=False)[1]) >= 3).any())
+    assert has_close_plots(z) == ref

@@ -286,6 +286,21 @@ def update_partitions(
     return out, rows, weights
 
 
-def has_close_plots(z: NDArray[np.float64]) -> bool:
-    """Whether two plots of the scan are within the widest cell distance (cheap test first)."""
-    return bool(cKDTree(z).query_pairs(LADDER_M[-1], output_type="ndarray").size)
+def has_close_plots(z: NDArray[np.float64], min_plots: int = 3) -> bool:
+    """Whether ``min_plots`` (2 or 3) plots of the scan are connected within the widest distance.
+
+    Three connected plots exist exactly when some plot has two neighbours
+    (a connected component of three or more has a node of degree two).
+    Pairwise distances, cheap for a scan's tens of plots.
+    """
+    m = z.shape[0]
+    if m < min_plots:
+        return False
+    if m > 400:  # a squall: the tree is cheaper than the full matrix
+        pairs = cKDTree(z).query_pairs(LADDER_M[-1], output_type="ndarray")
+        if min_plots <= 2 or not pairs.size:
+            return bool(pairs.size)
+        return bool((np.bincount(pairs.ravel(), minlength=m) >= 2).any())
+    d2 = (z[:, None, 0] - z[None, :, 0]) ** 2 + (z[:, None, 1] - z[None, :, 1]) ** 2
+    deg = (d2 <= LADDER_M[-1] ** 2).sum(axis=1) - 1
+    return bool((deg >= min_plots - 1).any())

@@ -251,7 +251,9 @@ class _Filter:
         pairs = gate_pairs(self.gate, self.motion, leaf_mm, leaf_mP, leaf_mu, pd_point, t_leaf,
                            z, R, tj)
         ext = None
-        if st.extended_vessels and (ext_slots or (m > 1 and has_close_plots(z))):
+        # cells only where they can matter: an extended vessel to update, or three plots close
+        # together that could start one (two plots rarely do: see ``_extscan.PAIR_BIRTH``)
+        if st.extended_vessels and (ext_slots or has_close_plots(z)):
             ext = extended_scan(self.motion, self.gate, (leaf_mm, leaf_mP, leaf_mu, t_leaf), pm,
                                 pP, tmiss, pd, slot_ext, z, R, tj, ids, pairs, slot_bern)
             if ext.book.cells or ext.ext_pairs:
