@@ -138,7 +138,7 @@ CASES: dict[str, Case] = {
     "zones-number-id": _zones(lambda d: d["features"][2]["properties"].update(id=5),
                               "properties.id", "string", '"type": "Feature"', nth=3),
     "zones-duplicate-id": _zones(lambda d: d["features"][2]["properties"].update(
-        id="firing-range"), "properties.id", "duplicate", '"id": "firing-range"'),
+        id="firing-range"), "properties.id", "duplicate", '"id": "firing-range"', nth=2),
     "zones-name-type": _zones(lambda d: d["features"][0]["properties"].update(name=1),
                               "properties.name", "string", '"id": "inner-basin"'),
     "zones-self-intersection": _zones(lambda d: d["features"][2]["geometry"].update(

@@ -27,7 +27,7 @@ LAYERS: tuple[tuple[str, ...], ...] = (
     ("report",),
     ("scoring",),
     ("sim",),
-    ("pipeline",),
+    ("pipeline", "progress"),
     ("cli", "__main__"),
 )
 

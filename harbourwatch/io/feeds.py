@@ -150,7 +150,9 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
     Returns
     -------
     PlotTable
-        Rows sorted by time (ties: by file in the order given, then line),
+        Rows sorted by time; ties by sensor, lat, lon, scan and sigma_m, so
+        the order of the rows and their split over files never matter (then
+        by file in the order given and line, for exact duplicates),
         exact duplicates (same time, sensor, lat, lon, scan, sigma_m) dropped
         after the first and counted.
 
@@ -177,7 +179,11 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
         cols = {c: np.concatenate([p[c] for p in parts]) for c in parts[0]}
     else:
         cols = {c: np.empty(0) for c in (*_COLUMNS, "source", "line")}
-    order = np.lexsort((cols["line"], cols["source"], cols["time"]))
+    # by time, then by the plot's own values, and only then by file and line: plots that
+    # share a time (a radar stamping a whole revolution at once) come out in the same
+    # order whatever the order of the rows or the split of the files
+    order = np.lexsort((cols["line"], cols["source"], cols["sigma_m"], cols["scan"], cols["lon"],
+                        cols["lat"], cols["sensor"], cols["time"]))
     cols = {c: v[order] for c, v in cols.items()}
     keep = _first_of_duplicates(cols)
     dropped = int(keep.size - np.count_nonzero(keep))

@@ -7,7 +7,17 @@ from os import PathLike
 
 from harbourwatch.errors import InputError
 
-__all__ = ["control_character", "read_text"]
+__all__ = ["BIDI_CONTROLS", "control_character", "read_text"]
+
+
+#: The bidirectional formatting characters (Unicode Standard Annex #9, "Unicode
+#: Bidirectional Algorithm", table 4 "Explicit formatting characters" and section 2.6
+#: "Implicit directional marks"): embeddings and overrides U+202A..U+202E, isolates
+#: U+2066..U+2069, and the marks LRM U+200E, RLM U+200F and ALM U+061C.
+BIDI_CONTROLS = frozenset(
+    [chr(c) for c in range(0x202A, 0x202F)] + [chr(c) for c in range(0x2066, 0x206A)]
+    + ["\u200e", "\u200f", "\u061c"]
+)
 
 
 def control_character(text: str) -> str | None:
@@ -15,17 +25,25 @@ def control_character(text: str) -> str | None:
 
     Ids, names and kinds end up in terminal tables, CSV files and web pages;
     a control character (tab, newline, escape, ...) has no place in any of
-    them and could rewrite what a terminal shows.
+    them and could rewrite what a terminal shows. Bidirectional controls
+    (:data:`BIDI_CONTROLS`) are refused too: a right-to-left override in a
+    zone name would reverse the rest of a narrative, times and probability
+    included, wherever it is shown.
 
     Examples
     --------
     >>> control_character("Calder Fairway")
     >>> control_character("red\x1b[31m")
     'control character U+001B is not allowed (at position 4)'
+    >>> control_character("Calder\u202eyawriaF")
+    'bidirectional control character U+202E is not allowed (at position 7)'
     """
     for k, ch in enumerate(text):
         if unicodedata.category(ch) == "Cc":
             return f"control character U+{ord(ch):04X} is not allowed (at position {k + 1})"
+        if ch in BIDI_CONTROLS:
+            return (f"bidirectional control character U+{ord(ch):04X} is not allowed "
+                    f"(at position {k + 1})")
     return None
 
 

@@ -125,12 +125,23 @@ class _Entry:
     def check_number(self, key: str, v: Any, *, lo: float, hi: float, lo_open: bool = False,
                      hi_open: bool = False, what: str = "a number", why: str = "") -> float:
         if isinstance(v, bool) or not isinstance(v, int | float) or not math.isfinite(v):
-            raise self.error(key, f"expected {what}, found {_show(v)}")
+            hint = " (text, not a number: remove the quotes)" if _numeric_text(v) else ""
+            raise self.error(key, f"expected {what}, found {_show(v)}{hint}")
         below = v <= lo if lo_open else v < lo
         above = v >= hi if hi_open else v > hi
         if below or above:
             raise self.error(key, f"expected {what}{why}, found {_show(v)}")
         return v
+
+
+def _numeric_text(v: Any) -> bool:
+    """True for a TOML string that holds a number (``lat = "54.3"``)."""
+    if not isinstance(v, str):
+        return False
+    try:
+        return math.isfinite(float(v))
+    except ValueError:
+        return False
 
 
 def _entries(path: str | PathLike[str], data: Mapping[str, Any], text: str,

@@ -23,26 +23,31 @@ _FEATURE_RE = re.compile(r'"type"\s*:\s*"Feature"')
 class _Feature:
     """One feature of the collection, located in the raw text for messages."""
 
-    def __init__(self, path: str | PathLike[str], text: str, index: int, raw: Any) -> None:
+    def __init__(self, path: str | PathLike[str], text: str, index: int, raw: Any,
+                 nth: int = 0) -> None:
         self.path, self.index, self.raw = path, index, raw
         props = raw.get("properties") if isinstance(raw, dict) else None
         fid = props.get("id") if isinstance(props, dict) else None
         self.id = fid if isinstance(fid, str) else None
-        self.line = _feature_line(text, index, self.id)
+        self.line = _feature_line(text, index, self.id, nth)
         self.label = f"feature {index + 1}" + (f" ({self.id!r})" if self.id else "")
 
     def error(self, field: str, message: str) -> InputError:
         return InputError(f"{self.label}: {message}", file=self.path, line=self.line, field=field)
 
 
-def _feature_line(text: str, index: int, fid: str | None) -> int | None:
-    """Best effort: the line of the feature's ``"id"``, else of its N-th ``"type": "Feature"``."""
+def _feature_line(text: str, index: int, fid: str | None, nth: int = 0) -> int | None:
+    """Best effort: the line of the feature's ``"id"``, else of its N-th ``"type": "Feature"``.
+
+    ``nth`` counts the earlier features with the same id, so a duplicate is
+    located at its own line, not at the first feature's.
+    """
     if fid is not None:
-        m = re.search(r'"id"\s*:\s*' + re.escape(json.dumps(fid)), text)
-        if m is None:
-            m = re.search(r'"id"\s*:\s*' + re.escape(json.dumps(fid, ensure_ascii=False)), text)
-        if m is not None:
-            return text.count("\n", 0, m.start()) + 1
+        for form in (json.dumps(fid), json.dumps(fid, ensure_ascii=False)):
+            found = list(re.finditer(r'"id"\s*:\s*' + re.escape(form), text))
+            if found:
+                m = found[min(nth, len(found) - 1)]
+                return text.count("\n", 0, m.start()) + 1
     matches = list(_FEATURE_RE.finditer(text))
     if index < len(matches):
         return text.count("\n", 0, matches[index].start()) + 1
@@ -123,8 +128,12 @@ def load_zones(path: str | PathLike[str]) -> tuple[ZoneConfig, ...]:
         raise InputError("expected 'features' to be an array", file=path, field="features")
     seen: dict[str, int | None] = {}
     feats: list[tuple[_Feature, str, dict[str, Any]]] = []
+    ids_so_far: list[Any] = []
     for i, raw in enumerate(raw_features):
-        f = _Feature(path, text, i, raw)
+        props_raw = raw.get("properties") if isinstance(raw, dict) else None
+        rid = props_raw.get("id") if isinstance(props_raw, dict) else None
+        f = _Feature(path, text, i, raw, nth=ids_so_far.count(rid) if isinstance(rid, str) else 0)
+        ids_so_far.append(rid)
         if not isinstance(raw, dict) or raw.get("type") != "Feature":
             raise f.error("type", "expected a GeoJSON Feature object")
         geom = raw.get("geometry")
