@@ -31,6 +31,13 @@ if TYPE_CHECKING:
     from harbourwatch.filter.tpmbm import _Filter
 
 
+#: Confirmation of a large vessel: an extended trajectory is reported once it was detected
+#: (a cell of plots assigned to it) in at least this many scans. A new extended vessel
+#: starts with existence 1 (a cell of several plots is never clutter), so the fragments a
+#: hull throws off for a few scans while it turns or stops would otherwise be reported.
+MIN_EXTENDED_DETECTIONS = 12
+
+
 class AsSeenRows(NamedTuple):
     """The hypotheses shown as-seen after one scan (the filtered estimate at that time)."""
 
@@ -79,6 +86,8 @@ def build_output(end: FilterEnd) -> FilterOutput:
                 while nodes.plot[end_node] < 0 and nodes.parent[end_node] >= 0:
                     end_node = int(nodes.parent[end_node])
             idx = nodes.chain(end_node)
+            if lh.ext is not None and int((nodes.plot[idx] >= 0).sum()) < MIN_EXTENDED_DETECTIONS:
+                continue  # an unconfirmed extended vessel: a fragment of a hull, not a ship
             chosen.append(
                 (
                     float(nodes.t[idx[0]]),
