@@ -332,3 +332,10 @@ def predict_slots(lhs: list, ext_slots: list[int], dt: Array, pd: Array  # type:
     pd[idx] *= -np.expm1(log_no_plot(a, b))
     arrays = {s: (a[k], b[k], v[k], V[k]) for k, s in enumerate(ext_slots)}
     return arrays, dict(zip(ext_slots, ext_tuples(a, b, v, V), strict=True)), pd
+
+
+def free_plots(z: Array, ii: NDArray[np.int64], jj: NDArray[np.int64], pP: Array) -> Array:
+    """The plots no established point-like track gates with (those could start a large vessel)."""
+    taken = np.zeros(z.shape[0], bool)
+    taken[jj[established(pP)[ii]]] = True
+    return z[~taken]

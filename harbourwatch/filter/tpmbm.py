@@ -79,6 +79,7 @@ from harbourwatch.filter._extscan import (
     cells_over_vessels,
     established,
     extended_scan,
+    free_plots,
     inside_hulls,
     overlap_penalty,
     predict_slots,
@@ -92,7 +93,7 @@ from harbourwatch.filter._hypotheses import (
 )
 from harbourwatch.filter._kernels import write_nodes
 from harbourwatch.filter._motion import TwoModeMotion
-from harbourwatch.filter._nodes import NodeStore
+from harbourwatch.filter._nodes import NodeStore, compact_nodes
 from harbourwatch.filter._scanstep import ChildMaker, group_work
 from harbourwatch.filter._undetected import UndetectedDensity
 from harbourwatch.filter.output import FilterOutput
@@ -251,9 +252,10 @@ class _Filter:
         pairs = gate_pairs(self.gate, self.motion, leaf_mm, leaf_mP, leaf_mu, pd_point, t_leaf,
                            z, R, tj)
         ext = None
-        # cells only where they can matter: an extended vessel to update, or three plots close
-        # together that could start one (two plots rarely do: see ``_extscan.PAIR_BIRTH``)
-        if st.extended_vessels and (ext_slots or has_close_plots(z)):
+        # cells only where they matter: an extended vessel to update, or three close plots of
+        # no established small craft that could start one (``_extscan.PAIR_BIRTH``: not two)
+        if st.extended_vessels and (ext_slots or (m > 2 and has_close_plots(
+                free_plots(z, pairs[0], pairs[1], pP)))):
             ext = extended_scan(self.motion, self.gate, (leaf_mm, leaf_mP, leaf_mu, t_leaf), pm,
                                 pP, tmiss, pd, slot_ext, z, R, tj, ids, pairs, slot_bern)
             if ext.book.cells or ext.ext_pairs:
@@ -365,7 +367,7 @@ class _Filter:
         self.max_berns = max(self.max_berns, nb)
         self.max_hyps = max([self.max_hyps] + [c.logw.size for c in new_clusters])
         record_as_seen(self, tk)
-        self._maybe_compact()
+        compact_nodes(self.nodes, self.retired + self.clusters, _COMPACT_MIN)
         self.timers["bookkeeping"] += _time.perf_counter() - t0
 
     def _fast_path(self, plots, cis, ctx, r_new, out) -> bool:  # type: ignore[no-untyped-def]
@@ -441,23 +443,6 @@ class _Filter:
         )
 
     # -- estimates ---------------------------------------------------------------------
-    def _maybe_compact(self) -> None:
-        """Drop nodes no hypothesis can reach any more, instead of growing the store."""
-        nodes = self.nodes
-        cap = nodes.t.size
-        if nodes.n < 0.9 * cap or nodes.n < _COMPACT_MIN:
-            return
-        all_lhs = [lh for c in self.retired + self.clusters for b in c.berns for lh in b.lhs]
-        live = [lh.node for lh in all_lhs]
-        for lh in all_lhs:
-            live.extend(lh.end_nodes)
-        remap = nodes.compact(np.array(live, np.int64))
-        for lh in all_lhs:
-            lh.node = int(remap[lh.node])
-            if lh.end_nodes:
-                lh.end_nodes = tuple(remap[list(lh.end_nodes)].tolist())
-        if nodes.n > 0.5 * cap:  # mostly live: make room now
-            nodes._reserve(cap - nodes.n + 1)
 
 
 def _finished(c: Cluster) -> bool:
