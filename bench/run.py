@@ -9,6 +9,8 @@ simulator against the oracle (Kalman smoother with the true association).
 
 Set ``BENCH_HOURS`` to shorten the throughput feed (default 6) and
 ``BENCH_RUNS`` for the number of timed runs (default 2; the slowest counts).
+Last, the input-contract fuzzing harness (``tests/fuzz_contract.py``) on
+``BENCH_FUZZ_EXAMPLES`` random cases (default 500).
 """
 
 from __future__ import annotations
@@ -101,6 +103,21 @@ def _load_time(path: Path) -> float | None:
     return page_load_seconds(path)
 
 
+def fuzz() -> None:
+    """The input-contract fuzzing harness on more random cases than ``make test`` runs."""
+    n = int(os.environ.get("BENCH_FUZZ_EXAMPLES", "500"))
+    harness = Path(__file__).resolve().parent.parent / "tests" / "fuzz_contract.py"
+    print(f"== fuzzing the input contract: {n} random generated cases, 3 GiB address-space cap")
+    t = time.perf_counter()
+    proc = subprocess.run([sys.executable, str(harness), "--examples", str(n), "--random"],
+                          cwd=harness.parent, capture_output=True, text=True)
+    if proc.returncode != 0:
+        print(proc.stdout[-3000:], proc.stderr[-3000:])
+        raise SystemExit("the fuzzing harness found a breach of the input contract")
+    _line("result", proc.stdout.strip().splitlines()[-1])
+    _line("time", f"{time.perf_counter() - t:.0f} s")
+
+
 def main() -> None:
     OUT.mkdir(parents=True, exist_ok=True)
     from bench import accuracy, bench_score, large_vessels
@@ -109,6 +126,7 @@ def main() -> None:
     bench_score.main()
     large_vessels.main()
     throughput()
+    fuzz()
 
 
 if __name__ == "__main__":

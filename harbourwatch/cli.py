@@ -95,6 +95,9 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--display-tz", metavar="ZONE", default=None, type=_time_zone,
                    help="also show times in this IANA time zone beside UTC on the pages, "
                         "e.g. Europe/Oslo; none: UTC only")
+    r.add_argument("--allow-gaps", action="store_true",
+                   help="accept a feed in which every radar is silent for more than 6 h "
+                        "(each gap is named in a warning); refused otherwise")
 
     s = _parser(sub, "score",
                 "accuracy of tracks against ground truth (GOSPA, trajectory GOSPA)")
@@ -137,6 +140,7 @@ def _cmd_run(a: argparse.Namespace) -> int:
     summary = run_review(
         a.feeds, sensors=a.sensors, zones=a.zones, rules=a.rules, out=a.out,
         seed=a.seed, tile_url=a.tiles, progress=not a.quiet, display_tz=a.display_tz,
+        allow_gaps=a.allow_gaps,
     )
     print(summary.as_text())
     print(f"\nOpen the shift overview: {Path(a.out, 'report.html').resolve()}")

@@ -34,6 +34,7 @@ from harbourwatch.rules.evaluate import (
     write_alerts_csv,
 )
 from harbourwatch.scene.build import LocalScene, into_local_frame
+from harbourwatch.scene.checks import clutter_warnings
 from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.trajectories import (
     TrajectorySet,
@@ -65,6 +66,7 @@ class RunSummary:
     alerts: tuple[Alert, ...] = ()
     alerts_text: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
+    warnings: tuple[str, ...] = field(default_factory=tuple)
 
     @property
     def clutter_share(self) -> float:
@@ -84,6 +86,7 @@ class RunSummary:
             f"outputs         {self.out_dir}",
         ]
         lines += [f"note            {n}" for n in self.notes]
+        lines += [f"warning         {w}" for w in self.warnings]
         lines += ["", self.alerts_text or "no alerts", "", CAUTION]
         return "\n".join(lines)
 
@@ -122,17 +125,22 @@ def _provenance(
     alerts: Sequence[Alert],
     fout: FilterOutput,
     timings: dict[str, float],
+    warnings: Sequence[str] = (),
 ) -> dict[str, Any]:
     """run.json's content: software, inputs with checksums, parameters, results, timings."""
     plots_used = int(sum(int(np.count_nonzero(tr.plot_ids >= 0)) for tr in tset))
+
+    def digest(p: PathArg) -> str:  # taken while reading: inputs are read once (FIFOs work)
+        return inp.checksums.get(str(p)) or sha256_file(p)
+
     return {
         "software": _versions(),
         "caution": CAUTION,
         "inputs": {
-            "feeds": [{"path": str(p), "sha256": sha256_file(p)} for p in feeds],
-            "sensors": {"path": str(sensors), "sha256": sha256_file(sensors)},
-            "zones": {"path": str(zones), "sha256": sha256_file(zones)},
-            "rules": {"path": str(rules), "sha256": sha256_file(rules)},
+            "feeds": [{"path": str(p), "sha256": digest(p)} for p in feeds],
+            "sensors": {"path": str(sensors), "sha256": digest(sensors)},
+            "zones": {"path": str(zones), "sha256": digest(zones)},
+            "rules": {"path": str(rules), "sha256": digest(rules)},
         },
         "parameters": {
             "filter": asdict(settings),
@@ -162,6 +170,7 @@ def _provenance(
         },
         "filter_stats": _jsonable(fout.stats),
         "filter_log": list(fout.log),
+        "warnings": list(warnings),
         "timings": timings,
     }
 
@@ -203,6 +212,7 @@ class _Request:
     tile_url: str | None
     screenshots: bool
     display_tz: str | None = None
+    allow_gaps: bool = False
 
     def input_files(self) -> list[PathArg]:
         return [*self.feeds, self.sensors, self.zones, self.rules]
@@ -215,7 +225,7 @@ def _read_inputs(req: _Request, timings: dict[str, float]) -> RunInputs:
 
     t = time.perf_counter()
     inp = load_inputs(req.feeds, sensors=req.sensors, zones=req.zones, rules=req.rules,
-                      rule_schemas=RULE_SCHEMAS)
+                      rule_schemas=RULE_SCHEMAS, allow_gaps=req.allow_gaps)
     timings["read_inputs_s"] = time.perf_counter() - t
     return inp
 
@@ -240,6 +250,16 @@ def _track(req: _Request, inp: RunInputs, bars: RunProgress,
         feed_start=feed_start, feed_end=feed_end,
     )
     return scene, fout, tset
+
+
+def _warnings(inp: RunInputs, scene: LocalScene, tset: TrajectorySet) -> list[str]:
+    """Every plausibility warning of the run (gaps, frame and zones, plots, clutter)."""
+    used = np.zeros(len(inp.plots), bool)
+    for tr in tset:
+        used[tr.plot_ids[tr.plot_ids >= 0]] = True
+    scans_per_sensor = np.bincount([sc.sensor for sc in inp.scans], minlength=len(inp.sensors))
+    return [*inp.warnings, *scene.warnings,
+            *clutter_warnings(inp.plots, inp.sensors, scans_per_sensor.tolist(), used)]
 
 
 def _apply_rules(req: _Request, inp: RunInputs, scene: LocalScene, tset: TrajectorySet,
@@ -284,6 +304,7 @@ def _review_into(req: _Request, inp: RunInputs, out_dir: Path, bars: RunProgress
                  timings: dict[str, float], t0: float) -> RunSummary:
     """Stages 2 to 5 into ``out_dir`` (the run's new folder, swapped in by the caller)."""
     scene, fout, tset = _track(req, inp, bars, timings)
+    warnings = _warnings(inp, scene, tset)
     # the trajectory tables are written on a second thread while the rules and the
     # reports are worked out: much of their time is spent in pyproj, numpy and
     # pyarrow, which release the interpreter lock
@@ -294,7 +315,7 @@ def _review_into(req: _Request, inp: RunInputs, out_dir: Path, bars: RunProgress
         provenance = _provenance(
             inp, req.feeds, sensors=req.sensors, zones=req.zones, rules=req.rules,
             settings=req.settings, seed=req.seed, tile_url=req.tile_url, frame=scene.frame,
-            tset=tset, alerts=alerts, fout=fout, timings=timings,
+            tset=tset, alerts=alerts, fout=fout, timings=timings, warnings=warnings,
         )
         provenance["parameters"]["display_tz"] = req.display_tz
         _write_pages(req, inp, tset, alerts, provenance, out_dir, bars, timings)
@@ -323,6 +344,7 @@ def _review_into(req: _Request, inp: RunInputs, out_dir: Path, bars: RunProgress
         alerts=tuple(alerts),
         alerts_text=alerts_table(alerts),
         notes=tuple(notes),
+        warnings=tuple(warnings),
     )
 
 
@@ -357,6 +379,7 @@ def run_review(
     progress: bool = True,
     screenshots: bool = False,
     display_tz: str | None = None,
+    allow_gaps: bool = False,
 ) -> RunSummary:
     """Review plot feeds end to end and write every output into ``out``.
 
@@ -386,6 +409,10 @@ def run_review(
     screenshots
         Also save PNG screenshots of the reports under ``out/screenshots``
         (needs a local Chromium; skipped with a note otherwise).
+    allow_gaps
+        Accept a feed in which every radar is silent for longer than
+        :data:`~harbourwatch.io.gaps.MAX_GAP_S` (each gap becomes a warning);
+        refused otherwise, naming the plot on the smaller side of the gap.
 
     Raises
     ------
@@ -399,7 +426,7 @@ def run_review(
     """
     req = _Request(feeds=feeds, sensors=sensors, zones=zones, rules=rules, out=out,
                    settings=settings or FilterSettings(), seed=seed, tile_url=tile_url,
-                   screenshots=screenshots, display_tz=display_tz)
+                   screenshots=screenshots, display_tz=display_tz, allow_gaps=allow_gaps)
     from harbourwatch.report._fmt import display_zone
 
     display_zone(display_tz)  # an unknown zone fails here, before any work

@@ -226,3 +226,16 @@ def demo_run(tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-untyp
     run_review([paths["feed"]], sensors=paths["sensors"], zones=paths["zones"],
                rules=paths["rules"], out=out, progress=False, display_tz="Europe/Oslo")
     return out
+
+
+@pytest.fixture(scope="module")
+def browser():  # type: ignore[no-untyped-def]
+    """Headless Chromium (Debian's), one per test module; the browser tests skip without it."""
+    from playwright import sync_api
+
+    from harbourwatch.report.screenshot import CHROMIUM, CHROMIUM_ARGS
+
+    with sync_api.sync_playwright() as pw:
+        b = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        yield b
+        b.close()

@@ -12,7 +12,7 @@ import pytest
 from report_fixtures import make_inputs
 
 from harbourwatch.report import write_reports
-from harbourwatch.report.screenshot import CHROMIUM, CHROMIUM_ARGS, block_network, take_screenshots
+from harbourwatch.report.screenshot import CHROMIUM, block_network, take_screenshots
 
 pytestmark = [
     pytest.mark.browser,
@@ -59,14 +59,6 @@ class _Page:
         assert self.errors == []
         assert self.blocked == []
         assert self.dialogs == []
-
-
-@pytest.fixture(scope="module")
-def browser() -> Iterator[sync_api.Browser]:
-    with sync_api.sync_playwright() as pw:
-        b = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
 
 
 @pytest.fixture

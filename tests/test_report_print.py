@@ -10,13 +10,12 @@ from __future__ import annotations
 
 import os
 import re
-from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
 from pyproj import Geod
 
-from harbourwatch.report.screenshot import CHROMIUM, CHROMIUM_ARGS, block_network
+from harbourwatch.report.screenshot import CHROMIUM, block_network
 
 pytestmark = [
     pytest.mark.browser,
@@ -36,14 +35,6 @@ GEOD = Geod(ellps="WGS84")
 def pdf_pages(pdf: bytes) -> int:
     """Page objects in a PDF (``/Type /Page``, not the ``/Type /Pages`` tree nodes)."""
     return len(re.findall(rb"/Type\s*/Page(?![a-zA-Z])", pdf))
-
-
-@pytest.fixture(scope="module")
-def browser() -> Iterator[sync_api.Browser]:
-    with sync_api.sync_playwright() as pw:
-        b = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
 
 
 def _open(browser: sync_api.Browser, path: Path, width: int, height: int = 900,

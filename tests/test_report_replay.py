@@ -20,7 +20,7 @@ from report_fixtures import T0, make_inputs
 from shapely.geometry import LineString, Point
 
 from harbourwatch.report import ReportInputs, write_reports
-from harbourwatch.report.screenshot import CHROMIUM, CHROMIUM_ARGS, block_network
+from harbourwatch.report.screenshot import CHROMIUM, block_network
 
 pytestmark = [
     pytest.mark.browser,
@@ -47,14 +47,6 @@ def shift(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, ReportInputs]
     inputs = make_inputs(n_tracks=8)
     write_reports(out, inputs)
     return out, inputs
-
-
-@pytest.fixture(scope="module")
-def browser() -> Iterator[sync_api.Browser]:
-    with sync_api.sync_playwright() as pw:
-        b = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        yield b
-        b.close()
 
 
 @pytest.fixture

@@ -15,15 +15,18 @@ from collections.abc import Callable
 import numpy as np
 from numpy.typing import NDArray
 
+from harbourwatch.filter._association import LONE_LOGW, LONE_TABLE, ScanContext
 from harbourwatch.filter._hypotheses import (
     ALIVE_FLOOR,
     Bernoulli,
+    Cluster,
     LocalHyp,
     miss_update,
     step_and_miss,
 )
+from harbourwatch.io.records import FilterSettings
 
-__all__ = ["ChildMaker", "group_work", "MISS", "DET", "NEW"]
+__all__ = ["ChildMaker", "group_work", "fast_path", "MISS", "DET", "NEW"]
 
 MISS, DET, NEW = 0, 1, 2  # kinds of queued nodes
 
@@ -180,3 +183,56 @@ def group_work(
         groups.values(), key=lambda g: g[0]
     )
     return work, touched | set(miss_only)
+
+
+def fast_path(clusters: list[Cluster], settings: FilterSettings, plots: list[int], cis: list[int],
+              ctx: ScanContext, r_new: list[float], out: list[Cluster]) -> bool:
+    """Handle the common tiny groups without the general machinery.
+
+    Same result as :func:`update_group` followed by :func:`prune` for: a
+    plot that gates with nothing; one Bernoulli with one hypothesis and no
+    plot; and one Bernoulli with one hypothesis and one plot when one of
+    the two children is below the weight threshold.
+    """
+    thr = settings.existence_prune
+    if not cis:
+        if len(plots) != 1:
+            return False
+        j = plots[0]
+        if r_new[j] >= thr:
+            out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
+        return True
+    if len(cis) != 1 or len(plots) > 1:
+        return False
+    c = clusters[cis[0]]
+    if c.logw.size != 1 or len(c.berns) != 1:
+        return False
+    b = c.berns[0]
+    lh = b.lhs[c.table.item(0)]
+    if not plots:
+        child = ctx.miss_child(lh)
+        if child.r >= thr:
+            out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
+        return True
+    j = plots[0]
+    pair = -1
+    for jj, p in ctx.det_pairs.get(lh.slot, ()):
+        if jj == j:
+            pair = p
+            break
+    if pair < 0:
+        return False
+    d = ctx.ln_miss[lh.slot] + ctx.ln_new_list[j] - ctx.ln_det[pair]
+    lwp = settings.log_weight_prune
+    if d < -lwp:
+        child = ctx.det_child(pair, j)
+        out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
+        return True
+    if d > lwp:
+        child = ctx.miss_child(lh)
+        if child.r >= thr:
+            out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
+        if r_new[j] >= thr:
+            out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
+        return True
+    return False

@@ -61,8 +61,6 @@ import numpy as np
 from numpy.typing import NDArray
 
 from harbourwatch.filter._association import (
-    LONE_LOGW,
-    LONE_TABLE,
     ScanContext,
     prune,
     update_group,
@@ -74,6 +72,7 @@ from harbourwatch.filter._cells import (
     has_close_plots,
     update_partitions,
 )
+from harbourwatch.filter._cluttermap import ClutterMap
 from harbourwatch.filter._estimate import AsSeenRows, FilterEnd, build_output, record_as_seen
 from harbourwatch.filter._extscan import (
     cells_over_vessels,
@@ -86,7 +85,6 @@ from harbourwatch.filter._extscan import (
 )
 from harbourwatch.filter._gating import MIN_STEP_S, chi2_gate, cover_detection, gate_pairs
 from harbourwatch.filter._hypotheses import (
-    Bernoulli,
     Cluster,
     LocalHyp,
     detection_log_weight,
@@ -94,7 +92,7 @@ from harbourwatch.filter._hypotheses import (
 from harbourwatch.filter._kernels import write_nodes
 from harbourwatch.filter._motion import TwoModeMotion
 from harbourwatch.filter._nodes import NodeStore, compact_nodes
-from harbourwatch.filter._scanstep import ChildMaker, group_work
+from harbourwatch.filter._scanstep import ChildMaker, fast_path, group_work
 from harbourwatch.filter._undetected import UndetectedDensity
 from harbourwatch.filter.output import FilterOutput
 from harbourwatch.io.records import FilterSettings
@@ -142,6 +140,7 @@ class _Filter:
             regions=[(b.polygon, b.arrivals_per_hour) for b in birth_regions],
         )
         self.nodes = NodeStore()
+        self.clutter_map = ClutterMap()
         self.clusters: list[Cluster] = []
         self.retired: list[Cluster] = []  # every local hypothesis frozen
         self.next_bid = 0
@@ -282,7 +281,13 @@ class _Filter:
         e = np.where(in_range, sensor.detection_probability, 0.0) * self.ppp.density(z)
         if slot_ext:  # no vessel starts inside a known hull
             e[inside_hulls(z, pm, pP, slot_ext, circle=np.arange(z.shape[0]) >= m)] = 0.0
-        lam = sensor.clutter_intensity
+        # clutter intensity: the configured rate, raised in cells of a persistent storm
+        explained = np.zeros(m, bool)
+        explained[jj[(r[ii] > 0.5) & (jj < m)]] = True
+        lam = self.clutter_map.intensity(scan.sensor, z[:m], ~explained, sensor.clutter_intensity,
+                                         math.pi * sensor.max_range_m**2)
+        if z.shape[0] > m:  # multi-plot cells: their new-vessel weight is set below
+            lam = np.concatenate([np.broadcast_to(lam, (m,)), np.zeros(z.shape[0] - m)])
         w_new = np.maximum(e + lam, 1e-300)  # > 0: every plot can always be clutter
         ln_new = np.log(w_new)
         r_new = e / w_new
@@ -328,7 +333,7 @@ class _Filter:
                                                      max_hyp=st.max_global_hypotheses,
                                                      count_cap=self.count_cap))
                     continue
-            if self._fast_path(plots, cis, ctx, r_new_l, new_clusters):
+            if fast_path(self.clusters, st, plots, cis, ctx, r_new_l, new_clusters):
                 continue
             cls = [self.clusters[ci] for ci in cis]
             if len(cls) == 1 and len(cls[0].berns) == 1 and len(plots) <= 1:
@@ -369,57 +374,6 @@ class _Filter:
         record_as_seen(self, tk)
         compact_nodes(self.nodes, self.retired + self.clusters, _COMPACT_MIN)
         self.timers["bookkeeping"] += _time.perf_counter() - t0
-
-    def _fast_path(self, plots, cis, ctx, r_new, out) -> bool:  # type: ignore[no-untyped-def]
-        """Handle the common tiny groups without the general machinery.
-
-        Same result as :func:`update_group` followed by :func:`prune` for: a
-        plot that gates with nothing; one Bernoulli with one hypothesis and no
-        plot; and one Bernoulli with one hypothesis and one plot when one of
-        the two children is below the weight threshold.
-        """
-        thr = self.settings.existence_prune
-        if not cis:
-            if len(plots) != 1:
-                return False
-            j = plots[0]
-            if r_new[j] >= thr:
-                out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
-            return True
-        if len(cis) != 1 or len(plots) > 1:
-            return False
-        c = self.clusters[cis[0]]
-        if c.logw.size != 1 or len(c.berns) != 1:
-            return False
-        b = c.berns[0]
-        lh = b.lhs[c.table.item(0)]
-        if not plots:
-            child = ctx.miss_child(lh)
-            if child.r >= thr:
-                out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
-            return True
-        j = plots[0]
-        pair = -1
-        for jj, p in ctx.det_pairs.get(lh.slot, ()):
-            if jj == j:
-                pair = p
-                break
-        if pair < 0:
-            return False
-        d = ctx.ln_miss[lh.slot] + ctx.ln_new_list[j] - ctx.ln_det[pair]
-        lwp = self.settings.log_weight_prune
-        if d < -lwp:
-            child = ctx.det_child(pair, j)
-            out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
-            return True
-        if d > lwp:
-            child = ctx.miss_child(lh)
-            if child.r >= thr:
-                out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
-            if r_new[j] >= thr:
-                out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
-            return True
-        return False
 
     def _flush_nodes(self, maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, ids, tj):  # type: ignore[no-untyped-def]
         """Write the scan's queued nodes in one compiled pass (see ``_kernels.write_nodes``).
