@@ -354,7 +354,7 @@ def test_fast_paths_give_the_general_result(monkeypatch):
     ]
     feed = make_feed(vessels, [Radar(site=(0.0, 0.0), clutter_per_scan=15.0)], 240.0, seed=3)
     fast = run_filter(feed.scans, feed.sensors, FilterSettings())
-    monkeypatch.setattr(_Filter, "_fast_path", lambda self, *a: False)
+    monkeypatch.setattr(tpmbm, "fast_path", lambda *a: False)
     monkeypatch.setattr(
         tpmbm,
         "update_single",
