@@ -120,10 +120,11 @@ def fuzz() -> None:
 
 def main() -> None:
     OUT.mkdir(parents=True, exist_ok=True)
-    from bench import accuracy, bench_score
+    from bench import accuracy, bench_score, large_vessels
 
     accuracy.main()
     bench_score.main()
+    large_vessels.main()
     throughput()
     fuzz()
 
