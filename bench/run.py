@@ -122,10 +122,11 @@ def fuzz() -> None:
 
 def main() -> None:
     OUT.mkdir(parents=True, exist_ok=True)
-    from bench import accuracy, bench_score, memory
+    from bench import accuracy, bench_score, large_vessels, memory
 
     accuracy.main()
     bench_score.main()
+    large_vessels.main()
     throughput()
     memory.main()
     fuzz()
