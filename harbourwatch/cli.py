@@ -24,7 +24,7 @@ EXIT_ALERTS = 3
 
 
 def build_parser() -> argparse.ArgumentParser:
-    """The ``harbourwatch`` argument parser with its four commands."""
+    """The ``harbourwatch`` argument parser with its commands."""
     p = argparse.ArgumentParser(
         prog="harbourwatch",
         description="After-the-fact review of harbour radar plots. Output supports, "
@@ -64,6 +64,36 @@ def build_parser() -> argparse.ArgumentParser:
 
     d = sub.add_parser("demo", help="the bundled scenario, end to end")
     d.add_argument("--out", default="demo_out", metavar="DIR")
+
+    c = sub.add_parser("campaign", help="review an archive of feeds in time chunks on dask.distributed")
+    c.add_argument("archive", nargs="+", metavar="ARCHIVE",
+                   help="feed files, folders (searched recursively) or glob patterns")
+    c.add_argument("--sensors", required=True, metavar="SENSORS.toml")
+    c.add_argument("--zones", required=True, metavar="ZONES.geojson")
+    c.add_argument("--rules", required=True, metavar="RULES.toml")
+    c.add_argument("--out", required=True, metavar="DIR")
+    c.add_argument("--chunk-h", type=float, default=24.0, metavar="H",
+                   help="chunk length in UTC hours (default 24: one UTC day)")
+    c.add_argument("--overlap-min", type=float, default=60.0, metavar="M",
+                   help="overlap shared by neighbouring chunks, minutes (default 60)")
+    c.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                   help="address of a running dask scheduler (default: dask's configured "
+                        "scheduler-address, else a local cluster sized to this machine)")
+    c.add_argument("--seed", type=int, default=0, help="seed of the alert-probability draws (default 0)")
+    c.add_argument("--quiet", action="store_true", help="no progress bar or log lines on the terminal")
+
+    f = sub.add_parser("find", help="query a campaign's catalogue")
+    f.add_argument("catalogue", metavar="CATALOGUE", help="catalogue.duckdb or its campaign folder")
+    f.add_argument("--zone", default=None, help="zone id")
+    f.add_argument("--rule", default=None, help="rule id or kind")
+    f.add_argument("--from", dest="start", default=None, metavar="TIME",
+                   help="alerts ending at or after TIME (ISO 8601 with zone, or a date)")
+    f.add_argument("--to", dest="end", default=None, metavar="TIME",
+                   help="alerts starting before TIME")
+    f.add_argument("--min-length-m", type=float, default=None, metavar="L",
+                   help="vessels at least L metres long (catalogues with vessel sizes)")
+    f.add_argument("--sql", default=None, metavar="QUERY", help="run one SQL query of your own")
+    f.add_argument("--format", choices=("table", "csv", "json"), default="table")
 
     m = sub.add_parser("simulate", help="write an invented scenario with ground truth")
     m.add_argument("--scenario", default="demo", help="scenario name (see --list)")
@@ -114,6 +144,28 @@ def _cmd_demo(a: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _cmd_campaign(a: argparse.Namespace) -> int:
+    from .campaign import run_campaign
+
+    summary = run_campaign(
+        a.archive, sensors=a.sensors, zones=a.zones, rules=a.rules, out=a.out, chunk_h=a.chunk_h,
+        overlap_min=a.overlap_min, scheduler=a.scheduler, seed=a.seed, progress=not a.quiet,
+    )
+    print(summary.as_text())
+    if summary.failed or summary.file_failures:
+        return EXIT_BAD_INPUT if summary.bad_input else EXIT_FAILURE
+    return EXIT_OK
+
+
+def _cmd_find(a: argparse.Namespace) -> int:
+    from .campaign import find, format_rows
+
+    cols, rows = find(a.catalogue, zone=a.zone, rule=a.rule, start=a.start, end=a.end,
+                      min_length_m=a.min_length_m, sql=a.sql)
+    print(format_rows(cols, rows, a.format))
+    return EXIT_OK
+
+
 def _cmd_simulate(a: argparse.Namespace) -> int:
     from .simulate import SCENARIOS, simulate_to_dir
 
@@ -131,7 +183,8 @@ def _cmd_simulate(a: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-_COMMANDS = {"run": _cmd_run, "score": _cmd_score, "demo": _cmd_demo, "simulate": _cmd_simulate}
+_COMMANDS = {"run": _cmd_run, "score": _cmd_score, "demo": _cmd_demo, "simulate": _cmd_simulate,
+             "campaign": _cmd_campaign, "find": _cmd_find}
 
 
 def main(argv: Sequence[str] | None = None) -> int:

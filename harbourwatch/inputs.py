@@ -60,6 +60,7 @@ def load_inputs(
     zones: str | PathLike[str],
     rules: str | PathLike[str],
     rule_schemas: Mapping[str, RuleSchema] | None = None,
+    window: tuple[float, float] | None = None,
 ) -> RunInputs:
     """Load and validate sensors, zones, rules and feeds (in that order), then form scans.
 
@@ -72,6 +73,9 @@ def load_inputs(
     rule_schemas
         Rule kinds by name, to validate the rules strictly (see
         :func:`harbourwatch.config.load_rules`).
+    window
+        Optional UTC time window ``(t0, t1)`` in epoch seconds: only plots with
+        ``t0 <= time < t1`` are kept (see :func:`harbourwatch.feeds.read_feeds`).
 
     Raises
     ------
@@ -81,7 +85,7 @@ def load_inputs(
     sensor_cfg = load_sensors(sensors)
     zone_cfg = load_zones(zones)
     rule_cfg = load_rules(rules, zone_cfg, rule_schemas)
-    plots = read_feeds(feeds, sensor_cfg)
+    plots = read_feeds(feeds, sensor_cfg, window=window)
     scans = tuple(group_scans(plots, sensor_cfg))
     return RunInputs(
         sensors=sensor_cfg, zones=zone_cfg, rules=rule_cfg, plots=plots, scans=scans,

@@ -258,6 +258,8 @@ def run_review(
     tile_url: str | None = None,
     progress: bool = True,
     screenshots: bool = False,
+    window: tuple[float, float] | None = None,
+    collect: Callable[[RunInputs, TrajectorySet, Sequence[Alert]], None] | None = None,
 ) -> RunSummary:
     """Review plot feeds end to end and write every output into ``out``.
 
@@ -280,6 +282,14 @@ def run_review(
     screenshots
         Also save PNG screenshots of the reports under ``out/screenshots``
         (needs a local Chromium; skipped with a note otherwise).
+    window
+        Optional UTC time window ``(t0, t1)``, epoch seconds: only plots with
+        ``t0 <= time < t1`` are reviewed (a campaign chunk reads its own files
+        and keeps its window's rows).
+    collect
+        Optional callback given the validated inputs, the trajectory set and
+        the alerts once the outputs are written (a campaign chunk keeps what
+        it needs for joining and radar health from there).
 
     Raises
     ------
@@ -293,7 +303,8 @@ def run_review(
     settings = settings or FilterSettings()
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
-    inp = load_inputs(feeds, sensors=sensors, zones=zones, rules=rules, rule_schemas=RULE_SCHEMAS)
+    inp = load_inputs(feeds, sensors=sensors, zones=zones, rules=rules, rule_schemas=RULE_SCHEMAS,
+                      window=window)
     timings["read_inputs_s"] = time.perf_counter() - t0
 
     t = time.perf_counter()
@@ -344,7 +355,11 @@ def run_review(
     timings["write_tables_s"] = tables.result()
 
     timings["total_s"] = time.perf_counter() - t0
+    if window is not None:
+        provenance["parameters"]["window"] = [format_utc_one(window[0]), format_utc_one(window[1])]
     atomic_write_text(out_dir / "run.json", json.dumps(provenance, indent=2, sort_keys=True) + "\n")
+    if collect is not None:
+        collect(inp, tset, alerts)
 
     notes: list[str] = list(fout.log[:5])
     if screenshots:
