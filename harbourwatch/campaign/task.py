@@ -187,7 +187,7 @@ def run_chunk(task: ChunkTask) -> dict[str, Any]:
     stale = sorted(parent.glob(f".{task.name}.tmp-*"))
     for s in stale:  # left by an attempt whose worker died
         _remove(s)
-    tmp = parent / f".{task.name}.tmp-{uuid.uuid4().hex[:12]}"
+    tmp = parent / f".{task.name}.tmp-{os.getpid()}-{uuid.uuid4().hex[:8]}"
     base: dict[str, Any] = {
         "chunk": task.name, "key": task.key, "core": list(task.core), "window": list(task.window),
         "feeds": list(task.feeds), "attempt": len(stale) + 1, "worker": _worker_name(),
