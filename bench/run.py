@@ -7,6 +7,9 @@ factor, peak memory of the child, stage timings from run.json, report size),
 then scored against its ground truth. Accuracy: the smaller scenarios of the
 simulator against the oracle (Kalman smoother with the true association).
 
+Campaign: a 4-day two-radar archive on two workers against one process
+(``bench/campaign.py``; ``BENCH_CAMPAIGN_DAYS`` changes the length).
+
 Set ``BENCH_HOURS`` to shorten the throughput feed (default 6) and
 ``BENCH_RUNS`` for the number of timed runs (default 2; the slowest counts).
 """
@@ -106,11 +109,12 @@ def _load_time(path: Path) -> float | None:
 
 def main() -> None:
     OUT.mkdir(parents=True, exist_ok=True)
-    from bench import accuracy, bench_score
+    from bench import accuracy, bench_score, campaign
 
     accuracy.main()
     bench_score.main()
     throughput()
+    campaign.main()
 
 
 if __name__ == "__main__":

@@ -157,3 +157,31 @@ def test_find_times() -> None:
                                                                               tzinfo=dt.UTC)
     with pytest.raises(InputError, match="zone"):
         parse_when("2026-10-01T02:00", option="--to")
+
+
+def test_radar_health_finds_the_simulated_outage(tmp_path: Path) -> None:
+    from harbourwatch.campaign.health import radar_health
+    from harbourwatch.pipeline import run_review
+    from harbourwatch.simulate import simulate_to_dir
+
+    # scenario 'outage': mole-light gives no plot for 600 s mid-feed (simulator truth)
+    simulate_to_dir("outage", tmp_path / "sim", duration_s=900.0)
+    zones = tmp_path / "zones.geojson"
+    zones.write_text('{"type": "FeatureCollection", "features": []}')
+    rules = tmp_path / "rules.toml"
+    rules.write_text("")
+    got: dict[str, list[dict[str, object]]] = {}
+
+    def keep(inp, tset, alerts):  # type: ignore[no-untyped-def]
+        got["h"] = radar_health(inp.plots, inp.scans, inp.sensors, tset)
+
+    run_review([tmp_path / "sim" / "plots.csv"], sensors=tmp_path / "sim" / "sensors.toml",
+               zones=zones, rules=rules, out=tmp_path / "out", progress=False, collect=keep)
+    head, mole = got["h"]
+    assert head["sensor"] == "calder-head" and head["outages"] == 0 and head["flags"] == ""
+    assert mole["outages"] == 1 and "outage" in str(mole["flags"])
+    # the gap between the last scan before and the first after is the outage plus at most
+    # about one scan period (3 s) on either side
+    assert 10.0 <= float(mole["longest_outage_min"]) <= 10.0 + 6.5 / 60.0  # type: ignore[arg-type]
+    for h in (head, mole):  # configured detection probability 0.9
+        assert abs(float(h["pd_estimated"]) - 0.9) < 0.1  # type: ignore[arg-type]
