@@ -18,10 +18,12 @@ figures the time of a year of such archives on a 64-core cluster.
 from __future__ import annotations
 
 import gzip
+import json
 import math
 import os
-import resource
 import shutil
+import subprocess
+import sys
 import time
 from pathlib import Path
 
@@ -37,8 +39,13 @@ def _line(label: str, value: str) -> None:
 
 
 def _scenario(days: float):  # type: ignore[no-untyped-def]
-    from harbourwatch._scenarios import _go, _open_sea_sensor, _plan, port_calder_zones_geojson
-    from harbourwatch._scenarios import PORT_CALDER_RULES
+    from harbourwatch._scenarios import (
+        PORT_CALDER_RULES,
+        _go,
+        _open_sea_sensor,
+        _plan,
+        port_calder_zones_geojson,
+    )
     from harbourwatch.simulate import Scenario, SimSensor
 
     dur = days * DAY
@@ -82,7 +89,6 @@ def make_archive(days: float) -> Path:
     if (root / "done").exists():
         return root
     shutil.rmtree(root, ignore_errors=True)
-    t = time.perf_counter()
     scen = _scenario(days)
     res = simulate(scen, seed=1)
     cols = plots_columns(res)
@@ -98,13 +104,12 @@ def make_archive(days: float) -> Path:
     (root / "zones.geojson").write_text(scen.zones_geojson or "")
     (root / "rules.toml").write_text(scen.rules_toml or "")
     (root / "done").write_text(f"{len(res.plots)} plots, {len(scen.vessels)} vessels\n")
-    _line("simulation and writing (not timed below)", f"{time.perf_counter() - t:.0f} s, "
-          f"{len(res.plots):,} plots, {len(scen.vessels)} vessels")
     return root
 
 
-def _campaign(root: Path, out: Path, **kw: object):  # type: ignore[no-untyped-def]
+def _campaign(root: Path, out: Path, **kw: object) -> dict:  # type: ignore[type-arg]
     from harbourwatch.campaign import run_campaign
+    from harbourwatch.campaign.task import peak_rss_mb
 
     shutil.rmtree(out, ignore_errors=True)
     t = time.perf_counter()
@@ -114,54 +119,86 @@ def _campaign(root: Path, out: Path, **kw: object):  # type: ignore[no-untyped-d
     wall = time.perf_counter() - t
     if s.failed:
         raise SystemExit(f"campaign failed: {[c.reason for c in s.failed]}")
-    return s, wall
+    return {"wall": wall, "timings": s.timings, "chunks": [c.result for c in s.chunks],
+            "trajectories": s.trajectories, "joined": s.joined, "alerts": s.alerts,
+            "client_peak_mb": peak_rss_mb()}
+
+
+def _child(*args: str) -> dict:  # type: ignore[type-arg]
+    """Run this module in a fresh process (its own peak memory) and read its JSON answer."""
+    proc = subprocess.run([sys.executable, "-m", "bench.campaign", *args], capture_output=True,
+                          text=True)
+    if proc.returncode != 0:
+        print(proc.stdout[-3000:], proc.stderr[-3000:])
+        raise SystemExit(f"bench child {args} failed with status {proc.returncode}")
+    return json.loads(proc.stdout.strip().splitlines()[-1])
 
 
 def main() -> None:
-    from harbourwatch.filter._kernels import warm_up
-
     days = float(os.environ.get("BENCH_CAMPAIGN_DAYS", "4"))
     print(f"== campaign: {days:g}-day two-radar archive, daily chunks, 60 min overlap")
-    warm_up()
-    root = make_archive(days)
+    made = _child("--archive", str(days))
+    if made.get("note"):
+        _line("simulation and writing (not timed below)", made["note"])
+    root = Path(made["root"])
     files = sorted((root / "feeds").rglob("*.csv.gz"))
-    _line("archive", f"{len(files)} files ({sum(f.stat().st_size for f in files) / 1e6:.0f} MB)")
+    _line("archive", f"{len(files)} files ({sum(f.stat().st_size for f in files) / 1e6:.0f} MB), "
+          f"{(root / 'done').read_text().strip()}")
 
-    one, t_one = _campaign(root, OUT / "one-process", executor="inline")
-    review_one = sum(c.result["seconds"] for c in one.chunks)
-    two, t_two = _campaign(root, OUT / "two-workers", n_workers=2)
-    by_worker: dict[str, list[dict]] = {}
-    for c in two.chunks:
-        by_worker.setdefault(c.result["worker"], []).append(c.result)
-    # the chunk reviews' span on the cluster: first start to last end is not recorded by the
-    # tasks, so the busiest worker's summed review time stands for it
-    review_two = max(sum(r["seconds"] for r in rs) for rs in by_worker.values())
-    combine = t_one - review_one
-    _line("chunks / trajectories / alerts", f"{len(two.chunks)} / {two.trajectories} "
-          f"({two.joined} joined across days) / {two.alerts}")
-    _line("one process: wall time", f"{t_one:.1f} s (chunk reviews {review_one:.1f} s)")
-    _line("two workers: wall time", f"{t_two:.1f} s (busiest worker {review_two:.1f} s)")
-    _line("speed-up, end to end", f"{t_one / t_two:.2f}x (target >= 1.8x on 2 cores)")
+    one = _child("--inline", str(root))
+    two = _campaign(root, OUT / "two-workers", n_workers=2)
+    review_one = one["timings"]["review_s"]
+    review_two = two["timings"]["review_s"]
+    by_worker: dict[str, list[dict]] = {}  # type: ignore[type-arg]
+    for r in two["chunks"]:
+        by_worker.setdefault(r["worker"], []).append(r)
+    _line("chunks / trajectories / alerts", f"{len(two['chunks'])} / {two['trajectories']} "
+          f"({two['joined']} joined across days) / {two['alerts']}")
+    for label, d in (("one process", one), ("two workers", two)):
+        tm = d["timings"]
+        _line(f"{label}: wall time", f"{d['wall']:.1f} s (start {tm['start_s']:.1f}, scan "
+              f"{tm['scan_s']:.1f}, chunk reviews {tm['review_s']:.1f}, combine "
+              f"{tm['combine_s']:.1f} s)")
+    _line("speed-up, end to end", f"{one['wall'] / two['wall']:.2f}x (target >= 1.8x on 2 cores)")
     _line("speed-up, chunk reviews", f"{review_one / review_two:.2f}x")
+    per_chunk = [r["seconds"] for r in one["chunks"]]
+    _line("one chunk-day, one process (min / max)", f"{min(per_chunk):.1f} / {max(per_chunk):.1f} s")
+    per_chunk2 = [r["seconds"] for r in two["chunks"]]
+    _line("one chunk-day, two workers (min / max)", f"{min(per_chunk2):.1f} / {max(per_chunk2):.1f} s")
     for w, rs in sorted(by_worker.items()):
         _line(f"peak memory, worker {w}", f"{max(r['peak_rss_mb'] for r in rs):.0f} MB "
               f"({len(rs)} chunks)")
-    _line("peak memory, one process", f"{resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MB")
+    _line("peak memory, one process (all chunks)", f"{one['client_peak_mb']:.0f} MB")
+    _line("peak memory, client of the cluster run", f"{two['client_peak_mb']:.0f} MB")
     same = all((OUT / "one-process" / n).read_bytes() == (OUT / "two-workers" / n).read_bytes()
-               for n in ("alerts.parquet", "tracks.parquet"))
-    _line("same tables from both", "yes" if same else "NO")
-    per_day = review_one / len(one.chunks)
-    per_day_combine = combine / len(one.chunks)
+               for n in ("alerts.parquet", "tracks.parquet", "trajectories.parquet"))
+    _line("byte-identical tables from both", "yes" if same else "NO")
+    n = len(two["chunks"])
+    per_day = sum(per_chunk2) / n  # a chunk's review with the other core busy too
+    combine_day = two["timings"]["combine_s"] / n
     waves = math.ceil(365 / 64)
-    year = waves * per_day + 365 * per_day_combine
-    _line("per chunk-day: review / client-side combine", f"{per_day:.1f} s / {per_day_combine:.2f} s")
-    _line("paper: a year on 64 cores (1 worker per core)",
-          f"{waves} waves x {per_day:.0f} s + 365 x {per_day_combine:.2f} s combine = "
-          f"{year / 60:.1f} min (one core: {365 * (per_day + per_day_combine) / 3600:.1f} h)")
+    year = two["timings"]["start_s"] + waves * per_day + 365 * combine_day
+    _line("paper: one chunk-day review / its share of combine", f"{per_day:.1f} s / {combine_day:.2f} s")
+    _line("paper: a year on 64 cores (64 workers)",
+          f"{waves} waves x {per_day:.0f} s + 365 x {combine_day:.2f} s on the client = "
+          f"{year / 60:.1f} min (on one core: {365 * (per_day + combine_day) / 3600:.1f} h)")
     busy = 4 * 28.0  # a busy day: four times the 6-hour throughput benchmark (README figure)
     _line("paper: a year of busy days (~112 s/day) on 64 cores",
-          f"{(waves * busy + 365 * per_day_combine) / 60:.1f} min")
+          f"{(waves * busy + 365 * combine_day) / 60:.1f} min")
 
 
 if __name__ == "__main__":
-    main()
+    if len(sys.argv) == 3 and sys.argv[1] == "--archive":
+        from harbourwatch.filter._kernels import warm_up
+
+        warm_up()
+        r = OUT / f"archive-{float(sys.argv[2]):g}d"
+        note = "" if (r / "done").exists() else "made"
+        t0 = time.perf_counter()
+        root = make_archive(float(sys.argv[2]))
+        print(json.dumps({"root": str(root),
+                          "note": note and f"{time.perf_counter() - t0:.0f} s"}))
+    elif len(sys.argv) == 3 and sys.argv[1] == "--inline":
+        print(json.dumps(_campaign(Path(sys.argv[2]), OUT / "one-process", executor="inline")))
+    else:
+        main()

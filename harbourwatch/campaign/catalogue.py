@@ -28,6 +28,7 @@ from typing import Any
 
 import numpy as np
 import pyarrow as pa
+import pyarrow.compute as pc
 import pyarrow.csv as pacsv
 import pyarrow.parquet as pq
 
@@ -101,19 +102,18 @@ def write_tracks(out: Path, chunks: Sequence[tuple[str, tuple[float, float], Pat
     with _atomic_path(out / TRACKS_FILE) as tmp, pq.ParquetWriter(tmp, schema) as writer:
         for name, (c0, c1), folder in chunks:
             t = _read_tracks(folder / "tracks.csv", extra)
-            ms = t.column("time").cast(pa.int64()).to_numpy()
-            keep = (ms >= round(c0 * 1000)) & (ms < round(c1 * 1000))
-            own = np.asarray(t.column("track").to_pylist(), dtype=object)
-            joined = np.array([piece_id.get((name, x), "") for x in own], dtype=object)
-            keep &= joined != ""
-            t = t.filter(pa.array(keep))
-            joined = joined[keep]
-            own = own[keep]
-            t = t.set_column(0, "track", pa.array(joined.tolist(), pa.string()))
-            t = t.append_column("chunk", pa.array([name] * t.num_rows, pa.string()))
-            t = t.append_column("chunk_track", pa.array(own.tolist(), pa.string()))
-            order = np.lexsort((t.column("time").cast(pa.int64()).to_numpy(), joined.astype(str)))
-            t = t.take(pa.array(order))
+            ms = t.column("time").cast(pa.int64())
+            own = t.column("track")
+            uniq = pc.unique(own)
+            mapped = pa.array([piece_id.get((name, x), "") for x in uniq.to_pylist()], pa.string())
+            joined = pc.take(mapped, pc.index_in(own, value_set=uniq))
+            keep = pc.and_(pc.and_(pc.greater_equal(ms, round(c0 * 1000)),
+                                   pc.less(ms, round(c1 * 1000))),
+                           pc.not_equal(joined, ""))
+            t = t.set_column(0, "track", joined)
+            t = t.append_column("chunk", pa.repeat(pa.scalar(name, pa.string()), t.num_rows))
+            t = t.append_column("chunk_track", own)
+            t = t.filter(keep).sort_by([("track", "ascending"), ("time", "ascending")])
             writer.write_table(t.select(schema.names).cast(schema))
             _accumulate(stats, t, name, extra)
     return stats, extra
@@ -122,15 +122,17 @@ def write_tracks(out: Path, chunks: Sequence[tuple[str, tuple[float, float], Pat
 def _accumulate(stats: dict[str, TrackStats], t: pa.Table, chunk: str, extra: Sequence[str]) -> None:
     if t.num_rows == 0:
         return
-    track = np.asarray(t.column("track").to_pylist(), dtype=object).astype(str)
+    enc = t.column("track").combine_chunks().dictionary_encode()
+    codes = enc.indices.to_numpy(zero_copy_only=False)
+    names = enc.dictionary.to_pylist()
     ms = t.column("time").cast(pa.int64()).to_numpy()
     lat, lon = t.column("lat").to_numpy(), t.column("lon").to_numpy()
     sog, ex = t.column("sog_kn").to_numpy(), t.column("existence").to_numpy()
     length = t.column("length_m").to_numpy(zero_copy_only=False) if "length_m" in extra else None
-    starts = np.flatnonzero(np.concatenate(([True], track[1:] != track[:-1])))
-    ends = np.append(starts[1:], track.size)
+    starts = np.flatnonzero(np.concatenate(([True], codes[1:] != codes[:-1])))
+    ends = np.append(starts[1:], codes.size)
     for a, b in zip(starts, ends, strict=True):
-        tid = str(track[a])
+        tid = str(names[codes[a]])
         s = stats.get(tid)
         if s is None:
             s = stats[tid] = TrackStats(lat=[], lon=[], start=int(ms[a]), end=int(ms[b - 1]),

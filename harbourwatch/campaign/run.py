@@ -63,6 +63,7 @@ class CampaignSummary:
     seconds: float
     where: str
     workers: int
+    timings: dict[str, float] = field(default_factory=dict)
 
     @property
     def failed(self) -> list[ChunkOutcome]:
@@ -224,7 +225,10 @@ def run_campaign(
         with open_runner(scheduler=scheduler, executor=executor, n_workers=n_workers,
                          progress=progress) as runner:
             where, workers = runner.where, runner.workers()
+            tick = time.perf_counter()
             spans, file_failures = _scan(runner, paths, out_dir)
+            timings = {"start_s": tick - t_start, "scan_s": time.perf_counter() - tick}
+            tick = time.perf_counter()
             plans = plan_chunks(spans, chunk_s=3600.0 * chunk_h, overlap_s=60.0 * overlap_min)
             tasks = []
             for p in plans:
@@ -258,15 +262,18 @@ def run_campaign(
                                                     reason=res["reason"],
                                                     bad_input=bool(res.get("bad_input")), result=res)
                     log.error("chunk %s: FAILED: %s", t.name, res["reason"])
+            timings["review_s"] = time.perf_counter() - tick
         _cleanup(chunks_dir)
         ordered = tuple(outcomes[p.name] for p in plans)
+        tick = time.perf_counter()
         combined = _combine(out_dir, plans, ordered, sensor_cfg=sensor_cfg, zone_cfg=zone_cfg,
                             rule_cfg=rule_cfg, seed=seed, overlap_s=60.0 * overlap_min)
+        timings["combine_s"] = time.perf_counter() - tick
         summary = CampaignSummary(
             out_dir=out_dir, chunks=ordered, file_failures=tuple(file_failures),
             trajectories=combined["trajectories"], joined=combined["joined"],
             alerts=combined["alerts"], seconds=time.perf_counter() - t_start, where=where,
-            workers=workers)
+            workers=workers, timings=timings)
         _write_provenance(out_dir, summary, chunk_h=chunk_h, overlap_min=overlap_min, seed=seed,
                           settings=settings, inputs=(sensors, zones, rules), config_sha=config_sha,
                           matches=combined["matches"])
@@ -340,5 +347,6 @@ def _write_provenance(out_dir: Path, s: CampaignSummary, *, chunk_h: float, over
         "file_failures": [{"path": p, "reason": r} for p, r in s.file_failures],
         "joins": matches,
         "results": {"trajectories": s.trajectories, "joined": s.joined, "alerts": s.alerts},
+        "timings": {**s.timings, "total_s": s.seconds},
     }
     atomic_write_text(out_dir / "campaign.json", json.dumps(data, indent=1, sort_keys=True) + "\n")

@@ -95,6 +95,18 @@ def read_done(folder: Path, key: str) -> dict[str, Any] | None:
     return data
 
 
+def peak_rss_mb() -> float:
+    """This process's peak resident memory, MB (``VmHWM``: its own, not inherited at spawn)."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1]) / 1024.0
+    except OSError:  # pragma: no cover - not Linux
+        pass
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0  # pragma: no cover
+
+
 def _worker_name() -> str:
     try:
         from distributed import get_worker
@@ -212,7 +224,7 @@ def run_chunk(task: ChunkTask) -> dict[str, Any]:
             "plots": summary.plots_total, "scans": summary.scans,
             "health": kept["health"],
             "seconds": time.perf_counter() - started,
-            "peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0,
+            "peak_rss_mb": peak_rss_mb(),
         }
         atomic_write_text(tmp / CHUNK_FILE, json.dumps(result, indent=1, sort_keys=True) + "\n")
         old = None
