@@ -30,14 +30,16 @@ browser-deps:
 	      || echo "could not install chromium: browser tests will be skipped"; \
 	  else echo "chromium not found: browser tests will be skipped"; fi; }
 
+# ruff, and the layout contract: stages import only from the stages below them, no cycle
 lint: $(STAMP)
 	$(BIN)/ruff check harbourwatch tests bench
+	$(BIN)/python -m pytest -q -p no:cacheprovider tests/test_layers.py
 
 typecheck: $(STAMP)
 	$(BIN)/mypy harbourwatch
 
 test: $(STAMP) browser-deps lint typecheck
-	$(BIN)/python -m pytest -n $(JOBS) -q
+	$(BIN)/python -m pytest -n $(JOBS) -q tests harbourwatch --doctest-modules
 
 bench: $(STAMP)
 	$(BIN)/python -m bench.run

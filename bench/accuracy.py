@@ -15,15 +15,19 @@ from pathlib import Path
 import numpy as np
 
 from bench.oracle import oracle_trajectories
-from harbourwatch._io import atomic_write_text
-from harbourwatch.config import KNOT_M_S, FilterSettings
-from harbourwatch.filter import run_filter
-from harbourwatch.geodesy import LocalFrame
-from harbourwatch.inputs import load_inputs
-from harbourwatch.pipeline import _sensor_models, measurement_scans
-from harbourwatch.scoring import score_files
-from harbourwatch.simulate import SCENARIOS, SimulationResult, simulate, simulate_to_dir
-from harbourwatch.trajectories import TrajectorySet, tracks_csv_text
+from harbourwatch import (
+    KNOT_M_S,
+    SCENARIOS,
+    FilterSettings,
+    SimulationResult,
+    TrajectorySet,
+    into_local_frame,
+    load_inputs,
+    run_filter,
+    score_files,
+    simulate,
+    simulate_to_dir,
+)
 
 
 def _line(label: str, value: str) -> None:
@@ -45,10 +49,9 @@ def review(name: str, work: Path, settings: FilterSettings | None = None,
     truth = next(p for p in files if p.name.startswith("truth"))
     inp = load_inputs([feed], sensors=work / name / "sensors.toml",
                       zones=_empty_zones(work), rules=_empty_rules(work))
-    frame = LocalFrame.around([s.lat_deg for s in inp.sensors], [s.lon_deg for s in inp.sensors])
-    mscans, _ = measurement_scans(inp.plots, inp.scans, inp.sensors, frame)
+    scene = into_local_frame(inp, settings)
+    frame, mscans, models = scene.frame, list(scene.scans), list(scene.sensors)
     t = time.perf_counter()
-    models = _sensor_models(inp.sensors, frame)
     out = run_filter(mscans, models, settings or FilterSettings())
     secs = time.perf_counter() - t
     LAST.update(mscans=mscans, models=models, settings=settings or FilterSettings())
@@ -64,19 +67,19 @@ LAST: dict = {}
 
 def _empty_zones(work: Path) -> Path:
     p = work / "empty_zones.geojson"
-    atomic_write_text(p, '{"type": "FeatureCollection", "features": []}\n')
+    p.write_text('{"type": "FeatureCollection", "features": []}\n', encoding="utf-8")
     return p
 
 
 def _empty_rules(work: Path) -> Path:
     p = work / "empty_rules.toml"
-    atomic_write_text(p, "# no rules\n")
+    p.write_text("# no rules\n", encoding="utf-8")
     return p
 
 
 def _score(tset: TrajectorySet, truth: Path, work: Path, tag: str) -> dict:
     p = work / f"{tag}_tracks.csv"
-    atomic_write_text(p, tracks_csv_text(tset))
+    p.write_text(tset.tracks_csv(), encoding="utf-8")
     return score_files(p, truth).as_dict()
 
 
@@ -156,8 +159,6 @@ def study_arpa(work: Path) -> None:
     164.38 Appendix A, section 3.8.3 -- values from memory, see README.
     """
     print("== plotting-aid standard: filtered true course/speed after 3 min of steady tracking")
-    from harbourwatch.simulate import TRUTH_STEP_S  # noqa: F401  (documented step of truth)
-
     sim, tset, sim_row, _, _ = review("arpa", work)
     a = tset.as_seen
     if a.time.size == 0:

@@ -14,7 +14,7 @@ import time
 
 import numpy as np
 
-from harbourwatch.metrics import gospa, trajectory_gospa
+from harbourwatch.scoring.metrics import gospa, trajectory_gospa
 
 __all__ = ["make_scenario", "main"]
 

@@ -1,9 +1,9 @@
 """Campaign benchmark: a 4-day two-radar archive on two workers against one process.
 
-The archive is simulated once (Port Calder's radars, 12 vessel slots with
-random routes, 6 false plots per scan per radar, from midnight UTC for
-``BENCH_CAMPAIGN_DAYS`` days, default 4) and written as one file per
-station per UTC day. It is then reviewed twice as a campaign of daily
+The archive is simulated once (the simulator's ``archive-days`` scenario: two
+radars, 12 vessel slots with random routes, 6 false plots per scan per radar,
+from midnight UTC for ``BENCH_CAMPAIGN_DAYS`` days, default 4) and written as
+one file per station per UTC day. It is then reviewed twice as a campaign of daily
 chunks with the default overlap of 60 minutes:
 
 * one process: the same chunk tasks run one after another in this process
@@ -38,78 +38,36 @@ def _line(label: str, value: str) -> None:
     print(f"  {label:<44s} {value}")
 
 
-def _scenario(days: float):  # type: ignore[no-untyped-def]
-    from harbourwatch._scenarios import (
-        PORT_CALDER_RULES,
-        _go,
-        _open_sea_sensor,
-        _plan,
-        port_calder_zones_geojson,
-    )
-    from harbourwatch.simulate import Scenario, SimSensor
-
-    dur = days * DAY
-    a = _open_sea_sensor("bench-west", -4000, 0, max_range_m=15000.0)
-    b = _open_sea_sensor("bench-east", 4000, 0, scan_period_s=3.0, max_range_m=15000.0)
-    rng = np.random.default_rng(20261003)
-    vessels = []
-
-    def point() -> tuple[float, float]:
-        r = 11000.0 * math.sqrt(rng.random())
-        th = rng.uniform(0, 2 * math.pi)
-        return r * math.sin(th), r * math.cos(th)
-
-    count = 0
-    for slot in range(12):
-        t = -rng.uniform(0, 1800.0)
-        while t < dur:
-            e, n = point()
-            kn = float(rng.uniform(3, 14))
-            legs, length, pe, pn = [], 0.0, e, n
-            for _ in range(int(rng.integers(2, 5))):
-                we, wn = point()
-                legs.append(_go(we, wn, kn))
-                length += math.hypot(we - pe, wn - pn)
-                pe, pn = we, wn
-            count += 1
-            vessels.append(_plan(f"arch-{slot:02d}-{count:05d}", t, e, n,
-                                 float(rng.uniform(0, 360)), kn, legs))
-            t += length / (kn * 1852.0 / 3600.0) + 40.0 + rng.uniform(0, 600.0)
-    return Scenario(name="campaign-bench", start_epoch_s=MIDNIGHT, duration_s=dur,
-                    sensors=(SimSensor(config=a), SimSensor(config=b)), vessels=tuple(vessels),
-                    zones_geojson=port_calder_zones_geojson(), rules_toml=PORT_CALDER_RULES)
-
-
 def make_archive(days: float) -> Path:
     """Simulate the archive and write one file per station per UTC day (kept between runs)."""
-    from harbourwatch._simwrite import _csv_bytes, plots_columns, write_sensors_toml
-    from harbourwatch.simulate import simulate
+    from harbourwatch import SCENARIOS, simulate
+    from harbourwatch.sim import plots_columns, write_sensors_toml
 
     root = OUT / f"archive-{days:g}d"
     if (root / "done").exists():
         return root
     shutil.rmtree(root, ignore_errors=True)
-    scen = _scenario(days)
+    scen = SCENARIOS["archive-days"].build(1, days * DAY)
     res = simulate(scen, seed=1)
     cols = plots_columns(res)
     day = np.floor((res.plots.time - MIDNIGHT) / DAY).astype(int)
     for si, s in enumerate(res.sensors):
         for d in np.unique(day):
             m = (res.plots.sensor == si) & (day == d)
+            rows = [",".join(r) for r in zip(*(c[m].tolist() for c in cols.values()), strict=True)]
             f = root / "feeds" / s.id / f"2026-05-{4 + int(d):02d}.csv.gz"
             f.parent.mkdir(parents=True, exist_ok=True)
-            f.write_bytes(gzip.compress(_csv_bytes(list(cols), [c[m] for c in cols.values()]),
-                                        compresslevel=1, mtime=0))
+            text = ",".join(cols) + "\n" + "\n".join(rows) + "\n"
+            f.write_bytes(gzip.compress(text.encode("utf-8"), compresslevel=1, mtime=0))
     write_sensors_toml(res.sensors, root / "sensors.toml")
     (root / "zones.geojson").write_text(scen.zones_geojson or "")
     (root / "rules.toml").write_text(scen.rules_toml or "")
-    (root / "done").write_text(f"{len(res.plots)} plots, {len(scen.vessels)} vessels\n")
+    (root / "done").write_text(f"{len(res.plots):,} plots, {len(scen.vessels)} vessels\n")
     return root
 
 
 def _campaign(root: Path, out: Path, **kw: object) -> dict:  # type: ignore[type-arg]
-    from harbourwatch.campaign import run_campaign
-    from harbourwatch.campaign.task import peak_rss_mb
+    from harbourwatch.campaign import peak_rss_mb, run_campaign
 
     shutil.rmtree(out, ignore_errors=True)
     t = time.perf_counter()
@@ -189,7 +147,7 @@ def main() -> None:
 
 if __name__ == "__main__":
     if len(sys.argv) == 3 and sys.argv[1] == "--archive":
-        from harbourwatch.filter._kernels import warm_up
+        from harbourwatch import warm_up
 
         warm_up()
         r = OUT / f"archive-{float(sys.argv[2]):g}d"

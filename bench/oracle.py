@@ -16,9 +16,8 @@ from dataclasses import replace
 
 import numpy as np
 
-from harbourwatch.config import FilterSettings
-from harbourwatch.filter import MeasurementScan, SensorModel, run_filter
-from harbourwatch.trajectories import Trajectory
+from harbourwatch import FilterSettings, Trajectory, run_filter
+from harbourwatch.scene import MeasurementScan, SensorModel
 
 
 def oracle_trajectories(

@@ -32,14 +32,11 @@ def _line(label: str, value: str) -> None:
 
 
 def throughput() -> None:
-    from harbourwatch.scoring import mean_gospa_files, score_files
-    from harbourwatch.simulate import simulate_to_dir
+    from harbourwatch import mean_gospa_files, score_files, simulate_to_dir, warm_up
 
     hours = float(os.environ.get("BENCH_HOURS", "6"))
     feed_dir = OUT / "feed"
     print(f"== throughput: scenario 'bench', {hours:g} h, two radars, ~40 vessels, 15 false plots/scan")
-    from harbourwatch.filter._kernels import warm_up
-
     t = time.perf_counter()
     warm_up()  # compiles the filter's kernels once per install (numba caches them on disk)
     _line("compiled kernels ready (one-off)", f"{time.perf_counter() - t:.1f} s")

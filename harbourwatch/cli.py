@@ -12,8 +12,9 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from . import __version__
-from .errors import HarbourwatchError, InputError
+from harbourwatch import __version__
+from harbourwatch.errors import HarbourwatchError, InputError
+from harbourwatch.units import CAUTION
 
 __all__ = ["main", "build_parser"]
 
@@ -27,8 +28,7 @@ def build_parser() -> argparse.ArgumentParser:
     """The ``harbourwatch`` argument parser with its commands."""
     p = argparse.ArgumentParser(
         prog="harbourwatch",
-        description="After-the-fact review of harbour radar plots. Output supports, "
-        "and never replaces, qualified watchkeepers and the competent authority.",
+        description="After-the-fact review of harbour radar plots. " + CAUTION,
     )
     p.add_argument("--version", action="version", version=f"harbourwatch {__version__}")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
@@ -106,7 +106,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _cmd_run(a: argparse.Namespace) -> int:
-    from .pipeline import run_review
+    from harbourwatch.pipeline import run_review
 
     summary = run_review(
         a.feeds, sensors=a.sensors, zones=a.zones, rules=a.rules, out=a.out,
@@ -119,7 +119,7 @@ def _cmd_run(a: argparse.Namespace) -> int:
 
 
 def _cmd_score(a: argparse.Namespace) -> int:
-    from .scoring import score_files, write_score_plot
+    from harbourwatch.scoring.score import score_files, write_score_plot
 
     report = score_files(
         a.tracks, a.truth, cutoff_m=a.cutoff_m, order=a.order,
@@ -136,7 +136,7 @@ def _cmd_score(a: argparse.Namespace) -> int:
 
 
 def _cmd_demo(a: argparse.Namespace) -> int:
-    from .pipeline import run_demo
+    from harbourwatch.pipeline import run_demo
 
     summary = run_demo(a.out)
     print(summary.as_text())
@@ -167,7 +167,7 @@ def _cmd_find(a: argparse.Namespace) -> int:
 
 
 def _cmd_simulate(a: argparse.Namespace) -> int:
-    from .simulate import SCENARIOS, simulate_to_dir
+    from harbourwatch.sim import SCENARIOS, simulate_to_dir
 
     if a.list:
         for name, scen in SCENARIOS.items():

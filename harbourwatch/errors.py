@@ -1,15 +1,17 @@
 """One exception hierarchy for every error a user can cause.
 
 ``HarbourwatchError`` is the base; the command line catches it, prints one
-line and exits with status 2 for :class:`InputError` (bad input) and 1 for
-anything else.
+line and exits with status 2 for :class:`InputError` (bad input) and
+:class:`ParameterError` (a library argument out of range, named so the
+command line can point at its flag), and 1 for anything else
+(:class:`ComputationError`).
 """
 
 from __future__ import annotations
 
 from os import PathLike
 
-__all__ = ["HarbourwatchError", "InputError"]
+__all__ = ["HarbourwatchError", "InputError", "ParameterError", "ComputationError"]
 
 
 class HarbourwatchError(Exception):
@@ -60,3 +62,24 @@ class InputError(HarbourwatchError, ValueError):
         if self.field is not None:
             where.append(f"field '{self.field}'")
         return (", ".join(where) + ": " if where else "") + self.message
+
+
+class ParameterError(HarbourwatchError, ValueError):
+    """A library function was called with an argument out of its range.
+
+    ``parameter`` names the argument (the command line maps it to its flag).
+
+    Examples
+    --------
+    >>> str(ParameterError("must be a positive number, got -1", parameter="cutoff_m"))
+    "parameter 'cutoff_m': must be a positive number, got -1"
+    """
+
+    def __init__(self, message: str, *, parameter: str) -> None:
+        self.message = message
+        self.parameter = parameter
+        super().__init__(f"parameter {parameter!r}: {message}")
+
+
+class ComputationError(HarbourwatchError, RuntimeError):
+    """A numerical step failed on valid input (a solver that did not converge)."""

@@ -19,32 +19,27 @@ from typing import Any
 
 import numpy as np
 
-from . import __version__
-from ._io import atomic_write_text, sha256_file
-from .config import FilterSettings, SensorConfig
-from .feeds import PlotTable, Scan
-from .filter import BirthRegion, FilterOutput, MeasurementScan, SensorModel, run_filter
-from .geodesy import LocalFrame
-from .inputs import RunInputs
-from .models import converted_covariance
-from .rules import Alert
-from .timefmt import format_utc_one
-from .trajectories import (
+from harbourwatch import __version__
+from harbourwatch.filter import FilterOutput, run_filter
+from harbourwatch.io.atomic import atomic_write_text, sha256_file
+from harbourwatch.io.inputs import RunInputs
+from harbourwatch.io.records import FilterSettings
+from harbourwatch.io.timefmt import format_utc_one
+from harbourwatch.rules.evaluate import Alert
+from harbourwatch.scene.build import into_local_frame
+from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.trajectories import (
     TrajectorySet,
     as_seen_csv_text,
     tracks_csv_text,
     trajectories_geojson,
 )
+from harbourwatch.units import CAUTION
 
-__all__ = ["RunSummary", "run_review", "run_demo", "measurement_scans", "CAUTION"]
+__all__ = ["RunSummary", "run_review", "run_demo"]
 
 PathArg = str | PathLike[str]
 
-#: Shown wherever results are shown.
-CAUTION = (
-    "Decision support only: these results support, and do not replace, qualified "
-    "watchkeepers and the competent authority. Not for navigation."
-)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -84,59 +79,6 @@ class RunSummary:
         lines += [f"note            {n}" for n in self.notes]
         lines += ["", self.alerts_text or "no alerts", "", CAUTION]
         return "\n".join(lines)
-
-
-def _sensor_models(sensors: Sequence[SensorConfig], frame: LocalFrame) -> list[SensorModel]:
-    e, n = frame.to_local([s.lat_deg for s in sensors], [s.lon_deg for s in sensors])
-    return [
-        SensorModel(
-            index=i,
-            site=(float(e[i]), float(n[i])),
-            detection_probability=s.detection_probability,
-            clutter_intensity=s.clutter_intensity_per_m2,
-            max_range_m=s.max_range_m,
-            scan_period_s=s.scan_period_s,
-        )
-        for i, s in enumerate(sensors)
-    ]
-
-
-def measurement_scans(
-    plots: PlotTable,
-    scans: Sequence[Scan],
-    sensors: Sequence[SensorConfig],
-    frame: LocalFrame,
-) -> tuple[list[MeasurementScan], np.ndarray]:
-    """Plots into the local frame with their covariances, one record per scan.
-
-    Returns the scans and the ``(N, 2)`` local positions of all plots.
-    """
-    e, n = frame.to_local(plots.lat_deg, plots.lon_deg)
-    z = np.column_stack([e, n])
-    R = np.empty((len(plots), 2, 2))
-    models = _sensor_models(sensors, frame)
-    for s, cfg in zip(models, sensors, strict=True):
-        idx = np.flatnonzero(plots.sensor == s.index)
-        if idx.size:
-            R[idx] = converted_covariance(
-                e[idx] - s.site[0],
-                n[idx] - s.site[1],
-                cfg.range_sigma_m,
-                np.radians(cfg.bearing_sigma_deg),
-                plots.sigma_m[idx],
-            )
-    out = [
-        MeasurementScan(
-            sensor=sc.sensor,
-            time=sc.time,
-            plot_ids=sc.plots,
-            plot_time=plots.time[sc.plots],
-            z=z[sc.plots],
-            R=R[sc.plots],
-        )
-        for sc in scans
-    ]
-    return out, z
 
 
 def _progress_printer(enabled: bool) -> Callable[[int, int], None] | None:
@@ -296,9 +238,14 @@ def run_review(
     InputError
         For any invalid input, before anything is written.
     """
-    from .inputs import load_inputs
-    from .report import ReportInputs, write_reports
-    from .rules import RULE_SCHEMAS, alerts_table, evaluate_rules, write_alerts_csv
+    from harbourwatch.io.inputs import load_inputs
+    from harbourwatch.report import ReportInputs, write_reports
+    from harbourwatch.rules.evaluate import (
+        RULE_SCHEMAS,
+        alerts_table,
+        evaluate_rules,
+        write_alerts_csv,
+    )
 
     settings = settings or FilterSettings()
     timings: dict[str, float] = {}
@@ -308,12 +255,11 @@ def run_review(
     timings["read_inputs_s"] = time.perf_counter() - t0
 
     t = time.perf_counter()
-    frame = LocalFrame.around([s.lat_deg for s in inp.sensors], [s.lon_deg for s in inp.sensors])
-    mscans, _ = measurement_scans(inp.plots, inp.scans, inp.sensors, frame)
-    births = _birth_regions(inp.zones, frame, settings)
+    scene = into_local_frame(inp, settings)
+    frame = scene.frame
     fout = run_filter(
-        mscans, _sensor_models(inp.sensors, frame), settings,
-        birth_regions=births, progress=_progress_printer(progress),
+        scene.scans, scene.sensors, settings,
+        birth_regions=scene.birth_regions, progress=_progress_printer(progress),
     )
     timings["filter_s"] = time.perf_counter() - t
 
@@ -333,7 +279,7 @@ def run_review(
     tables = pool.submit(_write_trajectory_tables, out_dir, tset)
     try:
         t = time.perf_counter()
-        alerts = evaluate_rules(tset, inp.zones, inp.rules, seed=seed)
+        alerts = evaluate_rules(tset, scene.zones, inp.rules, seed=seed)
         timings["rules_s"] = time.perf_counter() - t
         write_alerts_csv(alerts, out_dir / "alerts.csv")
         provenance = _provenance(
@@ -363,7 +309,7 @@ def run_review(
 
     notes: list[str] = list(fout.log[:5])
     if screenshots:
-        from .report.screenshot import take_screenshots
+        from harbourwatch.report.screenshot import take_screenshots
 
         shots = take_screenshots(out_dir)
         notes.append(
@@ -386,21 +332,6 @@ def run_review(
         alerts_text=alerts_table(alerts),
         notes=tuple(notes),
     )
-
-
-def _birth_regions(zones: Sequence[Any], frame: LocalFrame, settings: FilterSettings) -> list[BirthRegion]:
-    """Zones of kind ``entrance`` get extra arrivals (``settings.entrance_arrivals_per_hour``)."""
-    from shapely.geometry import shape
-    from shapely.ops import transform
-
-    extra = getattr(settings, "entrance_arrivals_per_hour", 0.0)
-    out = []
-    for z in zones:
-        if z.kind.strip().lower() != "entrance" or extra <= 0:
-            continue
-        geom = transform(lambda x, y: frame.to_local(y, x), shape(z.geometry))
-        out.append(BirthRegion(polygon=geom, arrivals_per_hour=extra))
-    return out
 
 
 def _jsonable(obj: Any) -> Any:
@@ -436,12 +367,12 @@ def run_demo(out: PathArg = "demo_out") -> RunSummary:
     scenario's ground truth (``score.json``) and saves screenshots of the
     reports when a local Chromium is available.
     """
-    from .scoring import score_files
+    from harbourwatch.scoring.score import score_files
 
     paths = demo_paths()
     out_dir = Path(out)
     if not all(p.exists() for p in paths.values()):
-        from .simulate import simulate_to_dir
+        from harbourwatch.sim import simulate_to_dir
 
         gen = out_dir / "scenario"
         simulate_to_dir("demo", gen, feed_format="csv.gz")

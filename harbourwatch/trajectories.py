@@ -9,14 +9,16 @@ they could be known at each moment (:class:`AsSeenTable`).
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
-from .filter.gaussian import ffbs_sample
-from .geodesy import LocalFrame
+from harbourwatch.models.gaussian import ffbs_sample
+from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.units import KNOT_M_S
 
 __all__ = [
     "Trajectory",
@@ -155,7 +157,11 @@ class TrajectorySet:
     def __len__(self) -> int:
         return len(self.trajectories)
 
-    def __iter__(self):  # type: ignore[no-untyped-def]
+    def tracks_csv(self) -> str:
+        """The contract's ``tracks.csv`` text of this set."""
+        return tracks_csv_text(self)
+
+    def __iter__(self) -> Iterator[Trajectory]:
         return iter(self.trajectories)
 
     def by_id(self, track_id: str) -> Trajectory:
@@ -168,8 +174,6 @@ class TrajectorySet:
 
 # --------------------------------------------------------------------------- export
 
-#: One international knot in m/s (1852 m per hour).
-_KNOT = 1852.0 / 3600.0
 
 TRACK_COLUMNS = ("track", "time", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "existence")
 AS_SEEN_COLUMNS = ("time", "track", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "existence")
@@ -178,7 +182,7 @@ AS_SEEN_COLUMNS = ("time", "track", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "
 def _sog_cog(frame: LocalFrame, mean: Array) -> tuple[Array, Array, Array, Array]:
     """Latitude, longitude, SOG (kn) and COG (deg true) of local states ``(N, 4)``."""
     lat, lon = frame.to_wgs84(mean[:, 0], mean[:, 2])
-    sog = np.hypot(mean[:, 1], mean[:, 3]) / _KNOT
+    sog = np.hypot(mean[:, 1], mean[:, 3]) / KNOT_M_S
     grid_course = np.arctan2(mean[:, 1], mean[:, 3])
     conv = frame.grid_convergence_rad(mean[:, 0], mean[:, 2], latlon=(lat, lon))
     cog = np.degrees(grid_course + conv) % 360.0
@@ -186,7 +190,7 @@ def _sog_cog(frame: LocalFrame, mean: Array) -> tuple[Array, Array, Array, Array
     return lat, lon, sog, cog
 
 
-def _csv_text(header: tuple[str, ...], columns: list[Any], decimals: list[int | None]) -> str:  # type: ignore[type-arg]
+def _csv_text(header: tuple[str, ...], columns: list[Any], decimals: list[int | None]) -> str:
     """CSV text of numeric and string columns, numbers rounded to ``decimals``.
 
     Written by pyarrow's CSV writer (fast on a million rows): each number is
@@ -216,7 +220,7 @@ def tracks_csv_text(tset: TrajectorySet) -> str:
 
     Track ids are plain ``T<n>`` strings, so no CSV quoting is ever needed.
     """
-    from .timefmt import format_utc_list
+    from harbourwatch.io.timefmt import format_utc_list
 
     ts = tset.trajectories
     if not ts:
@@ -238,7 +242,7 @@ def tracks_csv_text(tset: TrajectorySet) -> str:
 
 def as_seen_csv_text(tset: TrajectorySet) -> str:
     """``as_seen.csv``: the filtered estimate as known after each scan (documented in README)."""
-    from .timefmt import format_utc_list
+    from harbourwatch.io.timefmt import format_utc_list
 
     a = tset.as_seen
     if a.time.size == 0:
@@ -248,9 +252,9 @@ def as_seen_csv_text(tset: TrajectorySet) -> str:
     return _csv_text(AS_SEEN_COLUMNS, columns, [None, None, 7, 7, 2, 1, 1, 4])
 
 
-def trajectories_geojson(tset: TrajectorySet) -> dict:  # type: ignore[type-arg]
+def trajectories_geojson(tset: TrajectorySet) -> dict[str, Any]:
     """All trajectories as an RFC 7946 FeatureCollection of LineStrings (WGS84)."""
-    from .timefmt import format_utc_one
+    from harbourwatch.io.timefmt import format_utc_one
 
     features = []
     for t in tset.trajectories:
@@ -277,7 +281,7 @@ def trajectories_geojson(tset: TrajectorySet) -> dict:  # type: ignore[type-arg]
                     "present_at_end": bool(t.alive_at_end),
                     "states": int(t.time.size),
                     "plots": int(np.count_nonzero(t.plot_ids >= 0)) if t.plot_ids.size else 0,
-                    "max_sog_kn": round(float(t.speed.max()) / _KNOT, 2),
+                    "max_sog_kn": round(float(t.speed.max()) / KNOT_M_S, 2),
                 },
             }
         )

@@ -12,11 +12,11 @@ from types import MappingProxyType
 import numpy as np
 from shapely.geometry import Polygon
 
-from harbourwatch.config import RuleConfig, SensorConfig, ZoneConfig
-from harbourwatch.feeds import PlotTable, Scan
-from harbourwatch.geodesy import LocalFrame
+from harbourwatch.io.feeds import PlotTable, Scan
+from harbourwatch.io.records import RuleConfig, SensorConfig, ZoneConfig
 from harbourwatch.report import ReportInputs
-from harbourwatch.rules import Alert
+from harbourwatch.rules.evaluate import Alert
+from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.trajectories import AsSeenTable, Trajectory, TrajectorySet
 
 T0 = 1_777_874_400.0  # 2026-05-04T06:00:00Z

@@ -31,7 +31,7 @@ from harbourwatch.campaign import run_campaign
 from harbourwatch.campaign.join import JOIN_DISTANCE_M
 from harbourwatch.cli import main
 from harbourwatch.pipeline import run_review
-from harbourwatch.simulate import simulate_to_dir
+from harbourwatch.sim import simulate_to_dir
 
 pytestmark = pytest.mark.xdist_group("campaign")
 

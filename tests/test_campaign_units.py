@@ -162,7 +162,7 @@ def test_find_times() -> None:
 def test_radar_health_finds_the_simulated_outage(tmp_path: Path) -> None:
     from harbourwatch.campaign.health import radar_health
     from harbourwatch.pipeline import run_review
-    from harbourwatch.simulate import simulate_to_dir
+    from harbourwatch.sim import simulate_to_dir
 
     # scenario 'outage': mole-light gives no plot for 600 s mid-feed (simulator truth)
     simulate_to_dir("outage", tmp_path / "sim", duration_s=900.0)

@@ -18,10 +18,10 @@ import pytest
 from conftest import BAD_FEEDS, CALDER_ZONES_DOC, CalderFiles, line_of
 
 from harbourwatch.errors import InputError
-from harbourwatch.inputs import RunInputs, load_inputs
+from harbourwatch.io.inputs import RunInputs, load_inputs
 
 try:
-    from harbourwatch.rules import RULE_SCHEMAS
+    from harbourwatch.rules.evaluate import RULE_SCHEMAS
 except ImportError:  # rules registry not there yet: validate leniently
     RULE_SCHEMAS = None
 

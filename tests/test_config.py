@@ -10,14 +10,10 @@ import pytest
 from conftest import CALDER_ZONES_DOC, line_of
 from shapely.geometry import MultiPolygon, Polygon
 
-from harbourwatch.config import (
-    ParamSpec,
-    RuleSchema,
-    load_rules,
-    load_sensors,
-    load_zones,
-)
 from harbourwatch.errors import InputError
+from harbourwatch.io.records import ParamSpec, RuleSchema
+from harbourwatch.io.toml_files import load_rules, load_sensors
+from harbourwatch.io.zone_file import load_zones
 
 
 def _raises(fn, *args, **kw) -> InputError:
@@ -270,9 +266,9 @@ SCHEMAS = {
 }
 
 
-def test_rules_parse_with_and_without_schemas(calder):
+def test_rules_parse_with_given_and_registered_schemas(calder):
     zones = load_zones(calder.zones)
-    for schemas in (None, SCHEMAS):
+    for schemas in (None, SCHEMAS):  # None: the registered kinds
         loiter, crossing, meeting = load_rules(calder.rules, zones, schemas)
         assert (loiter.id, loiter.kind, loiter.zone) == ("basin-loiter", "loiter", "inner-basin")
         assert dict(loiter.params) == {"min_duration_min": 15, "max_speed_kn": 1.5}
@@ -337,7 +333,7 @@ def test_rules_file_may_be_empty(calder):
 
 
 def test_knot_is_1852_m_per_hour():
-    from harbourwatch.config import KNOT_M_S
+    from harbourwatch.units import KNOT_M_S
 
     # International nautical mile = 1852 m exactly (BIPM SI brochure, table 8).
     assert math.isclose(KNOT_M_S * 3600.0, 1852.0)

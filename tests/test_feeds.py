@@ -17,9 +17,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from strategies import feed_cell_garbage, plot_rows
 
-from harbourwatch.config import SensorConfig
 from harbourwatch.errors import InputError
-from harbourwatch.feeds import PlotTable, group_scans, read_feeds
+from harbourwatch.io.feeds import PlotTable, group_scans, read_feeds
+from harbourwatch.io.records import SensorConfig
 
 
 def _sensor(sid: str, period: float = 2.5) -> SensorConfig:

@@ -11,8 +11,7 @@ import pytest
 from scipy.stats import multivariate_normal
 from tpmbm_synth import Radar, Vessel, make_feed, purity
 
-from harbourwatch.config import FilterSettings
-from harbourwatch.filter import MeasurementScan, SensorModel, run_filter, tpmbm
+from harbourwatch.filter import run_filter, tpmbm
 from harbourwatch.filter._association import update_group
 from harbourwatch.filter._hypotheses import (
     beta_predict,
@@ -20,9 +19,11 @@ from harbourwatch.filter._hypotheses import (
     miss_update,
     new_trajectory_weight,
 )
-from harbourwatch.filter.gaussian import kf_predict, kf_update, rts_smooth
 from harbourwatch.filter.tpmbm import _Filter
-from harbourwatch.models import cv_process_noise, cv_transition
+from harbourwatch.io.records import FilterSettings
+from harbourwatch.models.cv import cv_process_noise, cv_transition
+from harbourwatch.models.gaussian import kf_predict, kf_update, rts_smooth
+from harbourwatch.scene.records import MeasurementScan, SensorModel
 
 # -- 1. one vessel, every scan detected: the filter is a Kalman filter + RTS smoother -----
 

@@ -1,4 +1,4 @@
-"""Tests of harbourwatch.filter.gaussian (Kalman steps, RTS smoother, FFBS draws).
+"""Tests of harbourwatch.models.gaussian (Kalman steps, RTS smoother, FFBS draws).
 
 Outside references: scipy.stats (normal and multivariate normal densities),
 scipy.linalg (dense solves of the normal equations / of the joint Gaussian),
@@ -16,7 +16,8 @@ from hypothesis import strategies as st
 from scipy.spatial.distance import mahalanobis
 from scipy.stats import multivariate_normal, norm
 
-from harbourwatch.filter.gaussian import (
+from harbourwatch.models.cv import H, cv_process_noise, cv_transition
+from harbourwatch.models.gaussian import (
     ffbs_sample,
     kf_predict,
     kf_update,
@@ -24,7 +25,6 @@ from harbourwatch.filter.gaussian import (
     mahalanobis2_batch,
     rts_smooth,
 )
-from harbourwatch.models import H, cv_process_noise, cv_transition
 
 seeds = st.integers(0, 2**32 - 1)
 

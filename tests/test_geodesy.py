@@ -23,7 +23,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from harbourwatch.geodesy import WGS84_GEOD, LocalFrame
+from harbourwatch.scene.geodesy import WGS84_GEOD, LocalFrame
 
 GEOD = WGS84_GEOD
 R_COVER_M = 25_000.0

@@ -29,8 +29,8 @@ import numpy as np
 import pytest
 from scipy.linalg import solve_discrete_are
 
-from harbourwatch.filter.gaussian import kf_predict, kf_update
-from harbourwatch.models import H, cv_process_noise, cv_transition
+from harbourwatch.models.cv import H, cv_process_noise, cv_transition
+from harbourwatch.models.gaussian import kf_predict, kf_update
 
 
 def kalata_alpha_beta(lam: float) -> tuple[float, float]:

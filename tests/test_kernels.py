@@ -2,7 +2,7 @@
 
 References: the batched-numpy IMM of ``TwoModeMotion`` (itself checked against
 scipy and the plain Kalman filter in test_motion.py), the step-by-step RTS
-smoother of ``harbourwatch.filter.gaussian`` (checked against the
+smoother of ``harbourwatch.models.gaussian`` (checked against the
 Kalman smoother's closed form in test_gaussian.py), and a breadth-first walk of
 parent links for node reachability.
 """
@@ -25,8 +25,8 @@ from harbourwatch.filter._kernels import (
 )
 from harbourwatch.filter._motion import TwoModeMotion
 from harbourwatch.filter._nodes import NodeStore
-from harbourwatch.filter.gaussian import kf_predict, rts_smooth
-from harbourwatch.models import cv_process_noise_batch, cv_transition_batch
+from harbourwatch.models.cv import cv_process_noise_batch, cv_transition_batch
+from harbourwatch.models.gaussian import kf_predict, rts_smooth
 
 
 def _plot_covariances(rng, k):

@@ -23,7 +23,7 @@ from scipy import sparse
 from scipy.optimize import linprog
 from strategies import point_sets, trajectory_sets
 
-from harbourwatch.metrics import gospa, grid_trajectories, trajectory_gospa
+from harbourwatch.scoring.metrics import gospa, grid_trajectories, trajectory_gospa
 
 FAST = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 LP = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -396,7 +396,7 @@ def test_tgospa_matches_published_forms_on_crowded_random_cases(rng: np.random.G
 def test_windowed_tgospa_brackets_the_exact_value(X, Y, cuts, c, p, gamma) -> None:
     # the windows' optima sum to a lower bound; with the boundary switches of their
     # solutions added, to the cost of a feasible assignment: an upper bound
-    from harbourwatch.tgospa_windows import trajectory_gospa_windowed
+    from harbourwatch.scoring.windows import trajectory_gospa_windowed
 
     exact = trajectory_gospa(X, Y, c=c, p=p, gamma=gamma).value
     w = trajectory_gospa_windowed(X, Y, c=c, p=p, gamma=gamma, cuts=sorted(cuts))
@@ -413,7 +413,7 @@ def test_windowed_tgospa_brackets_the_exact_value(X, Y, cuts, c, p, gamma) -> No
 def test_windowed_tgospa_is_exact_when_nothing_switches_at_a_boundary() -> None:
     # two vessels tracked without a switch: windows cannot change the value (computed by hand:
     # each estimate 1 m off its vessel at each of 6 steps, p = 2: 12 m^2, value sqrt(12))
-    from harbourwatch.tgospa_windows import trajectory_gospa_windowed
+    from harbourwatch.scoring.windows import trajectory_gospa_windowed
 
     t = np.arange(6.0)
     X = np.stack([np.c_[t, 0 * t], np.c_[t, 50 + 0 * t]])

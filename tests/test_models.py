@@ -20,7 +20,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import integrate, linalg, stats
 
-from harbourwatch.models import (
+from harbourwatch.models.cv import (
     converted_covariance,
     cv_process_noise,
     cv_process_noise_batch,

@@ -8,8 +8,8 @@ from scipy.stats import multivariate_normal
 from strategies import mode_states
 
 from harbourwatch.filter._motion import TwoModeMotion, merge
-from harbourwatch.filter.gaussian import kf_predict, kf_update
-from harbourwatch.models import H, cv_process_noise, cv_transition
+from harbourwatch.models.cv import H, cv_process_noise, cv_transition
+from harbourwatch.models.gaussian import kf_predict, kf_update
 
 
 def test_mode_transition_matches_matrix_exponential(rng):
@@ -35,7 +35,7 @@ def test_merge_is_moment_matching(rng):
 
 def test_imm_step_against_direct_computation(rng):
     # The IMM step written out directly for one pair: mixing, two Kalman filters
-    # (harbourwatch.filter.gaussian, itself checked against scipy), mixture likelihood
+    # (harbourwatch.models.gaussian, itself checked against scipy), mixture likelihood
     # checked against scipy.stats.multivariate_normal.
     mot = TwoModeMotion(0.0005, 0.05, interval_s=900.0, duration_s=60.0)
     m, P, mu = mode_states(rng, 1)

@@ -12,7 +12,7 @@ import pytest
 
 from harbourwatch.cli import main
 from harbourwatch.pipeline import demo_paths
-from harbourwatch.simulate import simulate_to_dir
+from harbourwatch.sim import simulate_to_dir
 from harbourwatch.trajectories import TRACK_COLUMNS
 
 ALERT_COLUMNS = ["rule", "kind", "track", "other_track", "zone", "start", "end", "probability",

@@ -16,12 +16,12 @@ from report_fixtures import T0, make_inputs
 from scipy.spatial.distance import mahalanobis
 
 from harbourwatch.errors import HarbourwatchError
-from harbourwatch.geodesy import WGS84_GEOD, LocalFrame
 from harbourwatch.report import CAUTION, _assets, write_reports
 from harbourwatch.report._data import REPLAY_STEP_S, replay_payload, scan_series
 from harbourwatch.report._layers import ellipse_latlon
 from harbourwatch.report.charts import nice_ticks
 from harbourwatch.report.incident import narrative
+from harbourwatch.scene.geodesy import WGS84_GEOD, LocalFrame
 
 HOSTILE_ZONE = "<script>alert(1)</script>"
 HOSTILE_RULE = '"&<>'

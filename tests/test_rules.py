@@ -21,13 +21,12 @@ from hypothesis import strategies as st
 from pyproj import Geod
 from shapely.geometry import MultiPolygon, Polygon
 
-from harbourwatch._rule_kinds import find_episodes
-from harbourwatch.config import KNOT_M_S, RuleConfig, ZoneConfig
 from harbourwatch.errors import InputError
-from harbourwatch.filter.gaussian import ffbs_sample, kf_predict, kf_update, rts_smooth
-from harbourwatch.geodesy import LocalFrame
-from harbourwatch.models import cv_process_noise, cv_transition
-from harbourwatch.rules import (
+from harbourwatch.io.records import RuleConfig, ZoneConfig
+from harbourwatch.io.toml_files import load_rules
+from harbourwatch.models.cv import cv_process_noise, cv_transition
+from harbourwatch.models.gaussian import ffbs_sample, kf_predict, kf_update, rts_smooth
+from harbourwatch.rules.evaluate import (
     ALERT_COLUMNS,
     RULE_KINDS,
     RULE_SCHEMAS,
@@ -37,11 +36,13 @@ from harbourwatch.rules import (
     evaluate_rules,
     register_kind,
     sample_window,
-    validate_rules,
     write_alerts_csv,
 )
+from harbourwatch.rules.kinds import find_episodes
+from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.scene.zones import LocalZone
 from harbourwatch.trajectories import AsSeenTable, Trajectory, TrajectorySet
-from harbourwatch.zones import LocalZone
+from harbourwatch.units import KNOT_M_S
 
 #: Centre of the invented Port Calder frame (an arbitrary open-sea position).
 FRAME = LocalFrame(56.02, -4.71)
@@ -455,16 +456,26 @@ def test_a_new_kind_is_one_registered_class(scenario: dict[str, Vessel]) -> None
         del RULE_KINDS["north-of"], RULE_SCHEMAS["north-of"]
 
 
-def test_validate_rules_names_file_line_and_field() -> None:
+def _rules_file(tmp_path, text: str):
+    p = tmp_path / "rules.toml"
+    p.write_text(text, encoding="utf-8")
+    return p
+
+
+def test_rules_are_validated_once_at_the_edge_with_file_line_and_field(tmp_path) -> None:
+    # the one validation: load_rules against the registered kinds' schemas
+    p = _rules_file(tmp_path, '[[rule]]\nid = "x"\nkind = "entry"\nzone = "no-such-zone"\n')
     with pytest.raises(InputError) as e:
-        validate_rules([rule("x", "entry", "no-such-zone")], ZONES)
-    assert (e.value.file, e.value.line, e.value.field) == ("rules.toml", 4, "zone")
+        load_rules(p, ZONES)
+    assert (e.value.file, e.value.line, e.value.field) == (str(p), 4, "zone")
     assert "inner-basin" in str(e.value)
+    p = _rules_file(tmp_path, '[[rule]]\nid = "x"\nkind = "loiter"\nzone = "inner-basin"\n'
+                              'min_duration_min = 5\n')
     with pytest.raises(InputError, match="max_speed_kn"):
-        validate_rules([rule("x", "loiter", "inner-basin", min_duration_min=5)], ZONES)
+        load_rules(p, ZONES)
+    p = _rules_file(tmp_path, '[[rule]]\nid = "x"\nkind = "entry"\n')
     with pytest.raises(InputError, match="needs a zone"):
-        validate_rules([rule("x", "entry", None)], ZONES)
-    validate_rules(RULES, ZONES)
+        load_rules(p, ZONES)
 
 
 def test_alerts_csv_contract_and_special_characters(tmp_path) -> None:  # type: ignore[no-untyped-def]
@@ -521,7 +532,6 @@ def test_existence_scales_the_probability(scenario: dict[str, Vessel]) -> None:
 
 
 def test_contract_example_rules_load_with_these_kinds(tmp_path) -> None:  # type: ignore[no-untyped-def]
-    from harbourwatch.config import load_rules
 
     # the rules example of the file contract (shared formats.md), verbatim keys
     text = """
@@ -562,10 +572,8 @@ zone = "outer-roads"
     zs = [*ZONES, zone("outer-roads", "Outer Roads", Polygon([(0, 0), (1, 0), (1, 1)]))]
     rules = load_rules(p, zs, RULE_SCHEMAS)
     assert [r.kind for r in rules] == ["loiter", "pass-through", "entry", "speed", "rendezvous"]
-    validate_rules(rules, zs)
-    bad = RuleConfig(id="x", kind="speed", zone="fairway", params=MappingProxyType(
-        {"max_speed_kn": -1.0}), source=str(p), line=9, param_lines=MappingProxyType(
-        {"max_speed_kn": 12}))
+    bad = text.replace("max_speed_kn = 8.0", "max_speed_kn = -1.0")
     with pytest.raises(InputError) as e:
-        validate_rules([bad], zs)
-    assert (e.value.line, e.value.field) == (12, "max_speed_kn")
+        load_rules(_rules_file(tmp_path, bad), zs)
+    assert (e.value.line, e.value.field) == (bad.splitlines().index("max_speed_kn = -1.0") + 1,
+                                             "max_speed_kn")

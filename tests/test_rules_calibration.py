@@ -15,8 +15,8 @@ import numpy as np
 from shapely.geometry import Polygon
 from test_rules import T0, kalman_trajectory, rule, tset, zone
 
-from harbourwatch.models import cv_process_noise, cv_transition
-from harbourwatch.rules import evaluate_rules
+from harbourwatch.models.cv import cv_process_noise, cv_transition
+from harbourwatch.rules.evaluate import evaluate_rules
 
 Q_PSD = 0.05
 SIGMA_M = 15.0

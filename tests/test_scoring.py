@@ -20,7 +20,7 @@ from pyproj import Geod
 
 from harbourwatch.cli import main
 from harbourwatch.errors import InputError
-from harbourwatch.scoring import mean_gospa_files, score_files, write_score_plot
+from harbourwatch.scoring.score import mean_gospa_files, score_files, write_score_plot
 
 GEOD = Geod(ellps="WGS84")
 KN = 1852.0 / 3600.0   # international knot in m/s (1 nmi = 1852 m exactly, by definition)
@@ -31,7 +31,7 @@ HEADER_TRACKS = ["track", "time", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "ex
 
 
 def iso(t: float) -> str:
-    from harbourwatch.timefmt import format_utc_one
+    from harbourwatch.io.timefmt import format_utc_one
 
     return format_utc_one(t)
 

@@ -9,8 +9,7 @@ import json
 import numpy as np
 import pytest
 
-from harbourwatch.config import KNOT_M_S
-from harbourwatch.geodesy import WGS84_GEOD, LocalFrame
+from harbourwatch.scene.geodesy import WGS84_GEOD, LocalFrame
 from harbourwatch.trajectories import (
     TRACK_COLUMNS,
     AsSeenTable,
@@ -20,6 +19,7 @@ from harbourwatch.trajectories import (
     tracks_csv_text,
     trajectories_geojson,
 )
+from harbourwatch.units import KNOT_M_S
 
 T0 = 1_777_874_400.0  # 2026-05-04T06:00:00Z
 

@@ -1,6 +1,6 @@
 """A small synthetic radar feed for the filter tests (straight-line vessels, uniform clutter).
 
-Independent of harbourwatch.simulate on purpose: the filter tests must not
+Independent of harbourwatch.sim.model on purpose: the filter tests must not
 depend on another module's modelling choices.
 """
 
@@ -10,8 +10,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from harbourwatch.filter import MeasurementScan, SensorModel
-from harbourwatch.models import converted_covariance
+from harbourwatch.models.cv import converted_covariance
+from harbourwatch.scene.records import MeasurementScan, SensorModel
 
 
 @dataclass

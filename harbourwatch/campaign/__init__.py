@@ -15,7 +15,8 @@ DuckDB), ``page`` (``index.html``), ``find`` (queries), ``run`` (the whole).
 
 from __future__ import annotations
 
-from .find import find, format_rows
-from .run import CampaignSummary, ChunkOutcome, run_campaign
+from harbourwatch.campaign.find import find, format_rows
+from harbourwatch.campaign.run import CampaignSummary, ChunkOutcome, run_campaign
+from harbourwatch.campaign.task import peak_rss_mb
 
-__all__ = ["run_campaign", "CampaignSummary", "ChunkOutcome", "find", "format_rows"]
+__all__ = ["run_campaign", "CampaignSummary", "ChunkOutcome", "find", "format_rows", "peak_rss_mb"]

@@ -27,12 +27,13 @@ import re
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 
-from ..config import RuleConfig, ZoneConfig
-from ..geodesy import LocalFrame
-from ..rules import ALERT_COLUMNS, Alert, evaluate_rules
-from ..timefmt import format_utc_one
-from ..trajectories import AsSeenTable, TrajectorySet
-from .join import JoinResult
+from harbourwatch.campaign.join import JoinResult
+from harbourwatch.io.records import RuleConfig, ZoneConfig
+from harbourwatch.io.timefmt import format_utc_one
+from harbourwatch.rules import Alert, evaluate_rules
+from harbourwatch.rules.evaluate import ALERT_COLUMNS
+from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.trajectories import AsSeenTable, TrajectorySet
 
 __all__ = ["combine_alerts", "read_alert_rows"]
 

@@ -25,10 +25,10 @@ from pathlib import Path
 
 import numpy as np
 
-from .._feedcols import parse_time, read_table
-from .._io import atomic_write_text, sha256_file
-from ..errors import InputError
-from ..timefmt import format_utc_one
+from harbourwatch.errors import InputError
+from harbourwatch.io.atomic import atomic_write_text, sha256_file
+from harbourwatch.io.table_reader import parse_time, read_table
+from harbourwatch.io.timefmt import format_utc_one
 
 __all__ = ["FileSpan", "ChunkPlan", "discover_feeds", "scan_file", "plan_chunks",
            "load_index", "save_index", "chunk_name"]

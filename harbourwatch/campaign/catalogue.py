@@ -21,7 +21,7 @@ from __future__ import annotations
 import contextlib
 import os
 import tempfile
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -32,8 +32,8 @@ import pyarrow.compute as pc
 import pyarrow.csv as pacsv
 import pyarrow.parquet as pq
 
-from ..rules import ALERT_COLUMNS
-from ..trajectories import TRACK_COLUMNS
+from harbourwatch.rules.evaluate import ALERT_COLUMNS
+from harbourwatch.trajectories import TRACK_COLUMNS
 
 __all__ = ["write_catalogue", "TrackStats", "TRACKS_FILE", "TRAJECTORIES_FILE", "ALERTS_FILE",
            "CATALOGUE_FILE"]
@@ -48,7 +48,7 @@ _TS = pa.timestamp("ms", tz="UTC")
 
 
 @contextlib.contextmanager
-def _atomic_path(final: Path):  # type: ignore[no-untyped-def]
+def _atomic_path(final: Path) -> Iterator[Path]:
     fd, tmp = tempfile.mkstemp(prefix=f".{final.name}.", suffix=".tmp", dir=final.parent)
     os.close(fd)
     os.unlink(tmp)  # writers that want to create the file themselves (duckdb)

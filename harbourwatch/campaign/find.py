@@ -19,7 +19,7 @@ from os import PathLike
 from pathlib import Path
 from typing import Any
 
-from ..errors import HarbourwatchError, InputError
+from harbourwatch.errors import HarbourwatchError, InputError
 
 __all__ = ["find", "format_rows", "parse_when"]
 

@@ -32,9 +32,9 @@ from typing import Any
 
 import numpy as np
 
-from ..config import SensorConfig
-from ..feeds import PlotTable, Scan
-from ..trajectories import TrajectorySet
+from harbourwatch.io.feeds import PlotTable, Scan
+from harbourwatch.io.records import SensorConfig
+from harbourwatch.trajectories import TrajectorySet
 
 __all__ = ["radar_health", "OUTAGE_PERIODS", "PD_TOLERANCE", "PD_MIN_STATES"]
 

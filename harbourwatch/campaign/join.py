@@ -44,7 +44,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
-from ..trajectories import Trajectory
+from harbourwatch.trajectories import Trajectory
 
 __all__ = ["ChunkPieces", "JoinResult", "join_chunks", "JOIN_DISTANCE_M", "MIN_COMMON_STATES"]
 

@@ -14,10 +14,10 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from .._io import atomic_write_text
-from ..report._assets import own_asset
-from ..report._html import esc, fmt_duration
-from ..report._page import CAUTION
+from harbourwatch.io.atomic import atomic_write_text
+from harbourwatch.report._assets import own_asset
+from harbourwatch.report._html import esc
+from harbourwatch.units import CAUTION, fmt_duration
 
 __all__ = ["write_index", "index_html"]
 

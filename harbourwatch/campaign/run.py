@@ -18,19 +18,40 @@ from os import PathLike
 from pathlib import Path
 from typing import Any
 
-from .. import __version__
-from .._io import atomic_write_text, sha256_file
-from ..config import FilterSettings, load_rules, load_sensors, load_zones
-from ..errors import InputError
-from ..geodesy import LocalFrame
-from ..timefmt import format_utc_one
-from .alerts import combine_alerts, read_alert_rows
-from .archive import FileSpan, discover_feeds, load_index, plan_chunks, save_index, scan_file
-from .archive import still_valid as _still_valid
-from .catalogue import alerts_table, write_catalogue, write_tracks, write_trajectories
-from .join import ChunkPieces, join_chunks
-from .schedule import open_runner
-from .task import CHUNKS_DIR, ChunkTask, chunk_key, load_states, read_done, run_chunk
+from harbourwatch import __version__
+from harbourwatch.campaign.alerts import combine_alerts, read_alert_rows
+from harbourwatch.campaign.archive import (
+    FileSpan,
+    discover_feeds,
+    load_index,
+    plan_chunks,
+    save_index,
+    scan_file,
+)
+from harbourwatch.campaign.archive import still_valid as _still_valid
+from harbourwatch.campaign.catalogue import (
+    alerts_table,
+    write_catalogue,
+    write_tracks,
+    write_trajectories,
+)
+from harbourwatch.campaign.join import ChunkPieces, join_chunks
+from harbourwatch.campaign.schedule import open_runner
+from harbourwatch.campaign.task import (
+    CHUNKS_DIR,
+    ChunkTask,
+    chunk_key,
+    load_states,
+    read_done,
+    run_chunk,
+)
+from harbourwatch.errors import InputError
+from harbourwatch.io.atomic import atomic_write_text, sha256_file
+from harbourwatch.io.records import FilterSettings
+from harbourwatch.io.timefmt import format_utc_one
+from harbourwatch.io.toml_files import load_rules, load_sensors
+from harbourwatch.io.zone_file import load_zones
+from harbourwatch.scene.geodesy import LocalFrame
 
 __all__ = ["run_campaign", "CampaignSummary", "ChunkOutcome"]
 
@@ -203,7 +224,7 @@ def run_campaign(
     """
     t_start = time.perf_counter()
     settings = settings or FilterSettings()
-    from ..rules import RULE_SCHEMAS
+    from harbourwatch.rules import RULE_SCHEMAS
 
     sensor_cfg = load_sensors(sensors)
     zone_cfg = load_zones(zones)
@@ -290,7 +311,7 @@ def _combine(out_dir: Path, plans: Sequence[Any], outcomes: Sequence[ChunkOutcom
              sensor_cfg: Any, zone_cfg: Any, rule_cfg: Any, seed: int, overlap_s: float
              ) -> dict[str, Any]:
     """Join the finished chunks and write the tables, the catalogue and the index page."""
-    from .page import write_index
+    from harbourwatch.campaign.page import write_index
 
     done = [(p, o) for p, o in zip(plans, outcomes, strict=True) if o.status in ("done", "skipped")]
     pieces = []

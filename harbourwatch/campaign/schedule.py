@@ -24,7 +24,7 @@ from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from typing import Any, TypeVar
 
-from ..errors import HarbourwatchError
+from harbourwatch.errors import HarbourwatchError
 
 __all__ = ["Runner", "open_runner", "usable_cores"]
 

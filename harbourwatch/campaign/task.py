@@ -31,11 +31,11 @@ from typing import Any
 
 import numpy as np
 
-from .. import __version__
-from .._io import atomic_write_text
-from ..config import FilterSettings
-from ..errors import InputError
-from ..trajectories import Trajectory, TrajectorySet
+from harbourwatch import __version__
+from harbourwatch.errors import InputError
+from harbourwatch.io.atomic import atomic_write_text
+from harbourwatch.io.records import FilterSettings
+from harbourwatch.trajectories import Trajectory, TrajectorySet
 
 __all__ = ["ChunkTask", "chunk_key", "run_chunk", "read_done", "STATES_FILE", "CHUNK_FILE",
            "load_states"]
@@ -189,8 +189,8 @@ def run_chunk(task: ChunkTask) -> dict[str, Any]:
     all. Every error is caught and returned as ``status: failed`` with its
     reason, so one bad chunk never stops the others.
     """
-    from ..pipeline import run_review
-    from .health import radar_health
+    from harbourwatch.campaign.health import radar_health
+    from harbourwatch.pipeline import run_review
 
     started = time.perf_counter()
     final = task.folder

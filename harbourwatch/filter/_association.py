@@ -17,8 +17,8 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from ._hypotheses import Bernoulli, Cluster, LocalHyp
-from .assignment import kbest_assignments
+from harbourwatch.filter._hypotheses import Bernoulli, Cluster, LocalHyp
+from harbourwatch.filter.assignment import kbest_assignments
 
 IntArray = NDArray[np.int64]
 Array = NDArray[np.float64]

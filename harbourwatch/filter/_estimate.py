@@ -11,24 +11,51 @@ the missed detections after it carry no information about where it went.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Any
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from typing import Any, NamedTuple
 
 import numpy as np
+from numpy.typing import NDArray
 
-from ..trajectories import AsSeenTable, Trajectory
-from . import FilterOutput
-from ._kernels import rts_smooth_chain
+from harbourwatch.filter._hypotheses import Cluster
+from harbourwatch.filter._kernels import rts_smooth_chain
+from harbourwatch.filter._nodes import NodeStore
+from harbourwatch.filter.output import FilterOutput
+from harbourwatch.io.records import FilterSettings
+from harbourwatch.trajectories import AsSeenTable, Trajectory
 
-if TYPE_CHECKING:
-    from .tpmbm import _Filter
+
+class AsSeenRows(NamedTuple):
+    """The hypotheses shown as-seen after one scan (the filtered estimate at that time)."""
+
+    time: float
+    bids: NDArray[np.int64]
+    mean: NDArray[np.float64]
+    sd: NDArray[np.float64]
+    existence: NDArray[np.float64]
 
 
-def build_output(filt: _Filter) -> FilterOutput:
-    st = filt.settings
-    nodes = filt.nodes
-    last_scan = filt.last_time
+@dataclass(frozen=True, kw_only=True, eq=False)
+class FilterEnd:
+    """What the recursion hands to the estimator when the last scan is processed."""
+
+    settings: FilterSettings
+    nodes: NodeStore
+    clusters: Sequence[Cluster]  # retired ones first, then the live ones
+    last_time: float
+    as_seen: Sequence[AsSeenRows]
+    stats: dict[str, Any]
+    log: Iterable[str]
+
+
+def build_output(end: FilterEnd) -> FilterOutput:
+    """The estimated set of all trajectories and the as-seen table (estimator of §1.8)."""
+    st = end.settings
+    nodes = end.nodes
+    last_scan = end.last_time
     chosen: list[tuple[float, float, int, Any]] = []
-    for c in filt.retired + filt.clusters:
+    for c in end.clusters:
         row = c.table[int(np.argmax(c.logw))]
         for b, h in zip(c.berns, row, strict=True):
             if h < 0:
@@ -83,27 +110,18 @@ def build_output(filt: _Filter) -> FilterOutput:
                 sensor_ids=nodes.sensor[idx].copy(),
             )
         )
-    if filt.as_seen:
-        tt = np.concatenate([np.full(r[1].size, r[0]) for r in filt.as_seen])
-        bids = np.concatenate([r[1] for r in filt.as_seen])
+    if end.as_seen:
+        tt = np.concatenate([np.full(r.bids.size, r.time) for r in end.as_seen])
+        bids = np.concatenate([r.bids for r in end.as_seen])
         names = {int(b): ids.get(int(b), f"P{int(b)}") for b in np.unique(bids)}
         as_seen = AsSeenTable(
             time=tt,
             track=np.array([names[int(b)] for b in bids], dtype="<U16"),
-            mean=np.concatenate([r[2] for r in filt.as_seen]),
-            sd=np.concatenate([r[3] for r in filt.as_seen]),
-            existence=np.concatenate([r[4] for r in filt.as_seen]),
+            mean=np.concatenate([r.mean for r in end.as_seen]),
+            sd=np.concatenate([r.sd for r in end.as_seen]),
+            existence=np.concatenate([r.existence for r in end.as_seen]),
         )
     else:
         as_seen = AsSeenTable.empty()
-    stats = {
-        "plots_total": filt.plots_total,
-        "plots_in_trajectories": used_plots,
-        "scans": filt.scan_count,
-        "scans_skipped_as_outage": filt.skipped_scans,
-        "caps_bitten": dict(filt.caps),
-        "max_bernoullis": filt.max_berns,
-        "max_global_hypotheses": filt.max_hyps,
-        "nodes": nodes.n,
-    }
-    return FilterOutput(trajectories=trajectories, as_seen=as_seen, stats=stats, log=list(filt.log))
+    stats = {**end.stats, "plots_in_trajectories": used_plots, "nodes": nodes.n}
+    return FilterOutput(trajectories=trajectories, as_seen=as_seen, stats=stats, log=list(end.log))

@@ -12,8 +12,9 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.special import chdtri, ndtr
 
-from . import SensorModel
-from ._kernels import gate_candidates
+from harbourwatch.errors import ParameterError
+from harbourwatch.filter._kernels import gate_candidates
+from harbourwatch.scene.records import SensorModel
 
 Array = NDArray[np.float64]
 _POS = [0, 2]
@@ -39,9 +40,9 @@ def chi2_gate(gate_probability: float, dim: int = 2) -> float:
     """
     p = float(gate_probability)
     if not 0.0 < p < 1.0:
-        raise ValueError(f"gate probability must lie in (0, 1), got {gate_probability!r}")
+        raise ParameterError(f"gate probability must lie in (0, 1), got {gate_probability!r}", parameter="gate_probability")
     if int(dim) != dim or dim < 1:
-        raise ValueError(f"dimension must be a positive integer, got {dim!r}")
+        raise ParameterError(f"dimension must be a positive integer, got {dim!r}", parameter="dim")
     return float(chdtri(int(dim), 1.0 - p))  # the chi-square quantile, lighter than scipy.stats
 
 

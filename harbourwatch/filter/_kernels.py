@@ -281,7 +281,7 @@ def imm_gate_update(  # type: ignore[no-untyped-def]
 def rts_smooth_chain(t, fm, fP, pm, pP):  # type: ignore[no-untyped-def]
     """Rauch-Tung-Striebel smoother along one chain of the CV model.
 
-    Same equations as :func:`harbourwatch.filter.gaussian.rts_smooth` (the
+    Same equations as :func:`harbourwatch.models.gaussian.rts_smooth` (the
     reference): ``G_k = P_k|k Fᵀ P_k+1|k⁻¹``, computed as the solve
     ``P_k+1|k G_kᵀ = F P_k|k`` by Gaussian elimination with partial pivoting.
     """

@@ -23,9 +23,9 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import NDArray
 
-from ..models import cv_process_noise_batch, cv_transition_batch
-from ._kernels import imm_gate_update, imm_predict
-from .gaussian import kf_predict, log_likelihood, mahalanobis2_batch
+from harbourwatch.filter._kernels import imm_gate_update, imm_predict
+from harbourwatch.models.cv import cv_process_noise_batch, cv_transition_batch
+from harbourwatch.models.gaussian import kf_predict, log_likelihood, mahalanobis2_batch
 
 __all__ = ["TwoModeMotion", "merge"]
 
@@ -148,7 +148,7 @@ class TwoModeMotion:
         the posterior mode probabilities, and their merged mean and covariance.
         Batched numpy: the reference that :meth:`gate_update` is tested against.
         """
-        from ._gating import batch_update
+        from harbourwatch.filter._gating import batch_update
 
         pm, pP, c = self._mix_predict(mm, mP, mu, dt)
         n = dt.size

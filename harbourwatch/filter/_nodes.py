@@ -23,9 +23,9 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import NDArray
 
-from ..models import cv_process_noise_batch, cv_transition_batch
-from ._kernels import reachable
-from .gaussian import kf_predict
+from harbourwatch.filter._kernels import reachable
+from harbourwatch.models.cv import cv_process_noise_batch, cv_transition_batch
+from harbourwatch.models.gaussian import kf_predict
 
 Array = NDArray[np.float64]
 IntArray = NDArray[np.int64]

@@ -15,7 +15,13 @@ from collections.abc import Callable
 import numpy as np
 from numpy.typing import NDArray
 
-from ._hypotheses import ALIVE_FLOOR, Bernoulli, LocalHyp, miss_update, step_and_miss
+from harbourwatch.filter._hypotheses import (
+    ALIVE_FLOOR,
+    Bernoulli,
+    LocalHyp,
+    miss_update,
+    step_and_miss,
+)
 
 __all__ = ["ChildMaker", "group_work", "MISS", "DET", "NEW"]
 

@@ -27,6 +27,8 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.optimize import linear_sum_assignment
 
+from harbourwatch.errors import ParameterError
+
 __all__ = ["best_assignment", "kbest_assignments"]
 
 Array = NDArray[np.float64]
@@ -37,9 +39,9 @@ def _check(cost: ArrayLike) -> Array:
     """Return ``cost`` as a float 2-D array; reject NaN and ``-inf`` (programming errors)."""
     c = np.asarray(cost, dtype=np.float64)
     if c.ndim != 2:
-        raise ValueError(f"cost matrix must be 2-D, got shape {c.shape}")
+        raise ParameterError(f"cost matrix must be 2-D, got shape {c.shape}", parameter="cost")
     if np.isnan(c).any() or np.isneginf(c).any():
-        raise ValueError("cost matrix contains NaN or -inf (forbidden pairs must be +inf)")
+        raise ParameterError("cost matrix contains NaN or -inf (forbidden pairs must be +inf)", parameter="cost")
     return c
 
 

@@ -60,9 +60,7 @@ from collections.abc import Callable, Sequence
 import numpy as np
 from numpy.typing import NDArray
 
-from ..config import FilterSettings
-from . import BirthRegion, FilterOutput, MeasurementScan, SensorModel
-from ._association import (
+from harbourwatch.filter._association import (
     LONE_LOGW,
     LONE_TABLE,
     ScanContext,
@@ -70,19 +68,22 @@ from ._association import (
     update_group,
     update_single,
 )
-from ._estimate import build_output
-from ._gating import MIN_STEP_S, chi2_gate, cover_detection, gate_pairs
-from ._hypotheses import (
+from harbourwatch.filter._estimate import AsSeenRows, FilterEnd, build_output
+from harbourwatch.filter._gating import MIN_STEP_S, chi2_gate, cover_detection, gate_pairs
+from harbourwatch.filter._hypotheses import (
     Bernoulli,
     Cluster,
     LocalHyp,
     detection_log_weight,
 )
-from ._kernels import write_nodes
-from ._motion import TwoModeMotion
-from ._nodes import NodeStore
-from ._scanstep import ChildMaker, group_work
-from ._undetected import UndetectedDensity
+from harbourwatch.filter._kernels import write_nodes
+from harbourwatch.filter._motion import TwoModeMotion
+from harbourwatch.filter._nodes import NodeStore
+from harbourwatch.filter._scanstep import ChildMaker, group_work
+from harbourwatch.filter._undetected import UndetectedDensity
+from harbourwatch.filter.output import FilterOutput
+from harbourwatch.io.records import FilterSettings
+from harbourwatch.scene.records import BirthRegion, MeasurementScan, SensorModel
 
 __all__ = ["run_tpmbm"]
 
@@ -138,7 +139,7 @@ class _Filter:
         self.scan_count = 0
         self.scan_index = 0
         self.last_time = -math.inf
-        self.as_seen: list[tuple[float, NDArray[np.int64], Array, Array, Array]] = []
+        self.as_seen: list[AsSeenRows] = []
 
     # -- bookkeeping -------------------------------------------------------------------
     def count_cap(self, name: str) -> None:
@@ -409,12 +410,12 @@ class _Filter:
             idx = np.array(leaves, np.int64)
             P = self.nodes.P[idx]
             self.as_seen.append(
-                (
-                    tk,
-                    np.array(bids, np.int64),
-                    self.nodes.m[idx],
-                    np.sqrt(0.5 * (P[:, 0, 0] + P[:, 2, 2])),
-                    np.array(rs),
+                AsSeenRows(
+                    time=tk,
+                    bids=np.array(bids, np.int64),
+                    mean=self.nodes.m[idx],
+                    sd=np.sqrt(0.5 * (P[:, 0, 0] + P[:, 2, 2])),
+                    existence=np.array(rs),
                 )
             )
 
@@ -467,7 +468,24 @@ def run_tpmbm(
         if gc_was_enabled:
             gc.enable()
     t0 = _time.perf_counter()
-    out = build_output(filt)
+    out = build_output(
+        FilterEnd(
+            settings=filt.settings,
+            nodes=filt.nodes,
+            clusters=filt.retired + filt.clusters,
+            last_time=filt.last_time,
+            as_seen=filt.as_seen,
+            stats={
+                "plots_total": filt.plots_total,
+                "scans": filt.scan_count,
+                "scans_skipped_as_outage": filt.skipped_scans,
+                "caps_bitten": dict(filt.caps),
+                "max_bernoullis": filt.max_berns,
+                "max_global_hypotheses": filt.max_hyps,
+            },
+            log=filt.log,
+        )
+    )
     filt.timers["estimate"] += _time.perf_counter() - t0
     out.stats["seconds"] = {k: round(v, 4) for k, v in filt.timers.items()}
     return out

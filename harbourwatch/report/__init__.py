@@ -12,13 +12,13 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from ..config import RuleConfig, SensorConfig, ZoneConfig
-from ..feeds import PlotTable, Scan
-from ..rules import Alert
-from ..trajectories import TrajectorySet
-from ._page import CAUTION, write_atomic
-from .incident import incident_html
-from .overview import incident_name, overview_html
+from harbourwatch.io.feeds import PlotTable, Scan
+from harbourwatch.io.records import RuleConfig, SensorConfig, ZoneConfig
+from harbourwatch.report._page import CAUTION, write_atomic
+from harbourwatch.report.incident import incident_html
+from harbourwatch.report.overview import incident_name, overview_html
+from harbourwatch.rules.evaluate import Alert
+from harbourwatch.trajectories import TrajectorySet
 
 __all__ = ["ReportInputs", "write_reports", "CAUTION", "incident_name"]
 

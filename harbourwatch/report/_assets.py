@@ -24,7 +24,7 @@ import hashlib
 import re
 from importlib import resources
 
-from ..errors import HarbourwatchError
+from harbourwatch.errors import HarbourwatchError
 
 __all__ = [
     "LEAFLET_VERSION",

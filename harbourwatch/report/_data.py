@@ -15,9 +15,9 @@ import numpy as np
 import shapely
 from numpy.typing import NDArray
 
-from ..config import SensorConfig, ZoneConfig
-from ..feeds import Scan
-from ..trajectories import Trajectory, TrajectorySet
+from harbourwatch.io.feeds import Scan
+from harbourwatch.io.records import SensorConfig, ZoneConfig
+from harbourwatch.trajectories import Trajectory, TrajectorySet
 
 __all__ = [
     "SIMPLIFY_TOLERANCE_M",
@@ -151,7 +151,7 @@ def zone_visits(ts: TrajectorySet, zones: Sequence[ZoneConfig],
             pts[tr.id] = np.column_stack([lat, lon])
     out: list[ZoneVisits] = []
     for z in zones:
-        if z.kind.strip().lower() == "land":
+        if z.kind_key == "land":
             continue
         shapely.prepare(z.geometry)
         tracks: list[str] = []

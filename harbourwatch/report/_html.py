@@ -25,7 +25,7 @@ import math
 import re
 from typing import Any
 
-__all__ = ["esc", "esc_tooltip", "script_json", "fmt_duration", "fmt_prob"]
+__all__ = ["esc", "esc_tooltip", "script_json", "fmt_prob"]
 
 
 def esc(text: object) -> str:
@@ -66,18 +66,6 @@ _JSON_STRING = re.compile(r'"(?:[^"\\]|\\.)*"')
 
 def _escape_braces(match: re.Match[str]) -> str:
     return match.group(0).replace("{", "\\u007b").replace("}", "\\u007d")
-
-
-def fmt_duration(seconds: float) -> str:
-    """``1 h 02 min 05 s`` style duration (rounded to the second)."""
-    s = int(round(max(seconds, 0.0)))
-    h, rem = divmod(s, 3600)
-    m, sec = divmod(rem, 60)
-    if h:
-        return f"{h} h {m:02d} min {sec:02d} s"
-    if m:
-        return f"{m} min {sec:02d} s"
-    return f"{sec} s"
 
 
 def fmt_prob(p: float) -> str:

@@ -11,14 +11,14 @@ from branca.element import Element
 from numpy.typing import NDArray
 from shapely.geometry import MultiPolygon, Polygon
 
-from ..config import ZoneConfig
-from ..geodesy import LocalFrame
-from ..timefmt import format_clock
-from ..trajectories import Trajectory
-from ._data import SIMPLIFY_TOLERANCE_M
-from ._html import esc_tooltip
-from ._mapbase import round5
-from ._style import TRACK_STYLE, zone_style
+from harbourwatch.io.records import ZoneConfig
+from harbourwatch.io.timefmt import format_clock
+from harbourwatch.report._data import SIMPLIFY_TOLERANCE_M
+from harbourwatch.report._html import esc_tooltip
+from harbourwatch.report._mapbase import round5
+from harbourwatch.report._style import TRACK_STYLE, zone_style
+from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.trajectories import Trajectory
 
 __all__ = ["add_zones", "add_track", "ellipse_latlon", "zone_label", "track_status"]
 
@@ -55,9 +55,9 @@ def _simplify_lonlat(geom: shapely.Geometry, frame: LocalFrame) -> shapely.Geome
 def add_zones(parent: Element, zones: Sequence[ZoneConfig],
               frame: LocalFrame) -> None:
     """Draw zones styled by kind; ``land`` zones are filled opaque like a chart's land."""
-    for z in sorted(zones, key=lambda z: (z.kind.strip().lower() != "land", z.id)):
+    for z in sorted(zones, key=lambda z: (z.kind_key != "land", z.id)):
         st = zone_style(z.kind)
-        land = z.kind.strip().lower() == "land"
+        land = z.kind_key == "land"
         tip = f"{zone_label(z)} \u2014 {z.kind or 'zone'}"
         for poly in _polygons(_simplify_lonlat(z.geometry, frame)):
             rings = [round5((lat, lon) for lon, lat in poly.exterior.coords)]

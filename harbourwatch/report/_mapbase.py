@@ -27,8 +27,8 @@ import numpy as np
 from branca.element import Element, Figure, MacroElement
 from folium.template import Template
 
-from ..errors import HarbourwatchError
-from ._html import esc, script_json
+from harbourwatch.errors import HarbourwatchError
+from harbourwatch.report._html import esc, script_json
 
 __all__ = ["MapParts", "new_map", "render_parts", "SafePopup", "PointLayer", "round5"]
 

@@ -6,18 +6,15 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from .._io import atomic_write_text
-from ._assets import leaflet_css, leaflet_js, own_asset
-from ._html import esc
-from ._mapbase import MapParts
+from harbourwatch.io.atomic import atomic_write_text
+from harbourwatch.report._assets import leaflet_css, leaflet_js, own_asset
+from harbourwatch.report._html import esc
+from harbourwatch.report._mapbase import MapParts
+from harbourwatch.units import CAUTION
 
 __all__ = ["CAUTION", "document", "provenance_html", "write_atomic"]
 
 #: Shown at the top of every page, above the fold.
-CAUTION = (
-    "Decision support only. This report supports, and does not replace, qualified "
-    "watchkeepers and the competent authority. Not for navigation. Local regulations prevail."
-)
 
 
 def document(*, title: str, body: str, parts: MapParts, scripts: Sequence[str] = (),

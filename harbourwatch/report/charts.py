@@ -15,9 +15,9 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike
 
-from ..timefmt import format_clock
-from ._html import esc
-from ._style import INK, PALETTE
+from harbourwatch.io.timefmt import format_clock
+from harbourwatch.report._html import esc
+from harbourwatch.report._style import INK, PALETTE
 
 __all__ = ["Series", "time_chart", "bar_chart", "histogram_grid", "nice_ticks"]
 

@@ -8,21 +8,22 @@ from typing import TYPE_CHECKING, Any
 import folium
 import numpy as np
 
-from ..config import KNOT_M_S, RuleConfig, ZoneConfig
-from ..rules import Alert
-from ..timefmt import format_clock, format_utc_one
-from ..trajectories import Trajectory, TrajectorySet
-from . import charts
-from ._data import state_index, track_latlon
-from ._html import esc, esc_tooltip, fmt_duration, fmt_prob
-from ._layers import add_track, add_zones, ellipse_latlon, zone_label
-from ._mapbase import PointLayer, new_map, render_parts, round5
-from ._page import document
-from ._style import PALETTE
-from .overview import map_bounds
+from harbourwatch.io.records import RuleConfig, ZoneConfig
+from harbourwatch.io.timefmt import format_clock, format_utc_one
+from harbourwatch.report import charts
+from harbourwatch.report._data import state_index, track_latlon
+from harbourwatch.report._html import esc, esc_tooltip, fmt_prob
+from harbourwatch.report._layers import add_track, add_zones, ellipse_latlon, zone_label
+from harbourwatch.report._mapbase import PointLayer, new_map, render_parts, round5
+from harbourwatch.report._page import document
+from harbourwatch.report._style import PALETTE
+from harbourwatch.report.overview import map_bounds
+from harbourwatch.rules.evaluate import Alert
+from harbourwatch.trajectories import Trajectory, TrajectorySet
+from harbourwatch.units import KNOT_M_S, fmt_duration
 
 if TYPE_CHECKING:
-    from . import ReportInputs
+    from harbourwatch.report import ReportInputs
 
 __all__ = ["incident_html", "narrative", "ellipse_points"]
 
@@ -140,8 +141,8 @@ def incident_html(inputs: ReportInputs, index: int) -> str:
     fallback = [(s.lat_deg, s.lon_deg) for s in inputs.sensors]
     bounds = map_bounds(seg_pts, fallback)
     m = new_map(bounds, tile_url=inputs.tile_url, height_px=470)
-    add_zones(m, [z for z in inputs.zones if z.kind.strip().lower() == "land"], ts.frame)
-    if zone is not None and zone.kind.strip().lower() != "land":
+    add_zones(m, [z for z in inputs.zones if z.kind_key == "land"], ts.frame)
+    if zone is not None and zone.kind_key != "land":
         add_zones(m, [zone], ts.frame)
     plots_fg = folium.FeatureGroup(name="Radar plots").add_to(m)
     n_plots = 0

@@ -8,11 +8,9 @@ from typing import TYPE_CHECKING
 import folium
 import numpy as np
 
-from ..rules import Alert
-from ..timefmt import format_clock, format_utc_one
-from ..trajectories import TrajectorySet
-from . import charts
-from ._data import (
+from harbourwatch.io.timefmt import format_clock, format_utc_one
+from harbourwatch.report import charts
+from harbourwatch.report._data import (
     GAP_SCAN_PERIODS,
     REPLAY_STEP_S,
     SIMPLIFY_TOLERANCE_M,
@@ -23,14 +21,17 @@ from ._data import (
     vessels_present,
     zone_visits,
 )
-from ._html import esc, esc_tooltip, fmt_duration, fmt_prob, script_json
-from ._layers import add_track, add_zones, track_status, zone_label
-from ._mapbase import SafePopup, new_map, render_parts
-from ._page import document, provenance_html
-from ._style import PALETTE, SENSOR_COLOURS, TRACK_STYLE, zone_kinds
+from harbourwatch.report._html import esc, esc_tooltip, fmt_prob, script_json
+from harbourwatch.report._layers import add_track, add_zones, track_status, zone_label
+from harbourwatch.report._mapbase import SafePopup, new_map, render_parts
+from harbourwatch.report._page import document, provenance_html
+from harbourwatch.report._style import PALETTE, SENSOR_COLOURS, TRACK_STYLE, zone_kinds
+from harbourwatch.rules.evaluate import Alert
+from harbourwatch.trajectories import TrajectorySet
+from harbourwatch.units import fmt_duration
 
 if TYPE_CHECKING:
-    from . import ReportInputs
+    from harbourwatch.report import ReportInputs
 
 __all__ = ["overview_html", "incident_name", "alert_latlon", "map_bounds"]
 
@@ -214,9 +215,9 @@ def overview_html(inputs: ReportInputs) -> str:
     m = new_map(bounds, tile_url=inputs.tile_url, height_px=560)
 
     land = folium.FeatureGroup(name="Land", control=False).add_to(m)
-    add_zones(land, [z for z in inputs.zones if z.kind.strip().lower() == "land"], ts.frame)
+    add_zones(land, [z for z in inputs.zones if z.kind_key == "land"], ts.frame)
     zones = folium.FeatureGroup(name="Zones").add_to(m)
-    add_zones(zones, [z for z in inputs.zones if z.kind.strip().lower() != "land"], ts.frame)
+    add_zones(zones, [z for z in inputs.zones if z.kind_key != "land"], ts.frame)
     groups = {
         "present": folium.FeatureGroup(name="Trajectories present at end").add_to(m),
         "departed": folium.FeatureGroup(name="Trajectories departed").add_to(m),

@@ -12,6 +12,7 @@ from __future__ import annotations
 import os
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
+from typing import Any
 
 __all__ = ["CHROMIUM", "CHROMIUM_ARGS", "take_screenshots", "block_network", "page_load_seconds"]
 
@@ -26,10 +27,10 @@ CHROMIUM_ARGS = [
 ]
 
 
-def block_network(page, blocked: list[str] | None = None) -> None:  # type: ignore[no-untyped-def]
+def block_network(page: Any, blocked: list[str] | None = None) -> None:
     """Abort every request of ``page`` that is not a ``file:`` or ``data:`` URL."""
 
-    def handle(route) -> None:  # type: ignore[no-untyped-def]
+    def handle(route: Any) -> None:
         url = route.request.url
         if url.startswith(("file://", "data:")):
             route.continue_()
@@ -67,7 +68,7 @@ def take_screenshots(out_dir: Path, *, max_incidents: int = 5) -> list[Path]:
         return pool.submit(_shoot, sync_playwright, pages, shots).result()
 
 
-def _shoot(sync_playwright, pages: list[Path], shots: Path) -> list[Path]:  # type: ignore[no-untyped-def]
+def _shoot(sync_playwright: Any, pages: list[Path], shots: Path) -> list[Path]:
     written: list[Path] = []
     with sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
@@ -86,7 +87,7 @@ def _shoot(sync_playwright, pages: list[Path], shots: Path) -> list[Path]:  # ty
     return written
 
 
-def _wait_for_map_to_settle(page) -> None:  # type: ignore[no-untyped-def]
+def _wait_for_map_to_settle(page: Any) -> None:
     """Let a zoom or pan animation started while the page loaded (fitting the map to
     the incident) finish, so the screenshot shows the final view."""
     two_frames = (

@@ -1,6 +1,6 @@
 """Simulation engine: vessel motion on the ellipsoid and the rotating-radar plot model.
 
-Private helpers of :mod:`harbourwatch.simulate` (which documents the models).
+Private helpers of :mod:`harbourwatch.sim.model` (which documents the models).
 """
 
 from __future__ import annotations
@@ -8,16 +8,22 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
-from .config import KNOT_M_S
-from .geodesy import WGS84_GEOD
-
-if TYPE_CHECKING:
-    from .simulate import Scenario, SimSensor, VesselPlan, VesselTruth
+from harbourwatch.errors import ParameterError
+from harbourwatch.scene.geodesy import WGS84_GEOD
+from harbourwatch.sim.model import (
+    PlotArrays,
+    Scenario,
+    SimSensor,
+    SimulationResult,
+    VesselPlan,
+    VesselTruth,
+)
+from harbourwatch.units import KNOT_M_S
 
 Array = NDArray[Any]
 
@@ -136,7 +142,7 @@ def _segments(plan: VesselPlan, t_limit: float) -> list[_Seg]:
             if leg.speed_kn is not None:
                 v = leg.speed_kn * KNOT_M_S
             if v <= 0:
-                raise ValueError(f"vessel {plan.name!r}: goto needs a speed > 0")
+                raise ParameterError(f"vessel {plan.name!r}: goto needs a speed > 0", parameter="speed_kn")
             az, _, _ = WGS84_GEOD.inv(lon, lat, leg.lon_deg, leg.lat_deg)
             delta = _wrap180(float(az) - course)
             if abs(delta) > 0.5:
@@ -150,7 +156,6 @@ def _segments(plan: VesselPlan, t_limit: float) -> list[_Seg]:
 
 def _vessel_truth(plan: VesselPlan, scenario: Scenario,
                   sites: list[tuple[float, float, float]]) -> VesselTruth:
-    from .simulate import VesselTruth
 
     dur = scenario.duration_s
     segs = _segments(plan, dur)
@@ -226,7 +231,7 @@ def _draw_errors(sim: SimSensor, n: int, rng: np.random.Generator) -> tuple[Arra
         for h in e.bearing_uniform_half_deg:
             b += rng.uniform(-h, h, n)
         return r, b
-    raise ValueError(f"unknown noise model {sim.noise!r}")
+    raise ParameterError(f"unknown noise model {sim.noise!r}", parameter="noise")
 
 
 def _in_outage(t_rel: Array, outages: Sequence[tuple[float, float]]) -> NDArray[np.bool_]:
@@ -306,3 +311,50 @@ def _sensor_plots(si: int, sim: SimSensor, truths: Sequence[VesselTruth], scenar
     out = {k: (np.concatenate(v) if v else np.zeros(0)) for k, v in cols.items()}
     out["sensor"] = np.full(out["time"].size, float(si))
     return out, north
+
+
+# --------------------------------------------------------------------------- simulation
+
+
+def simulate(scenario: Scenario, seed: int) -> SimulationResult:
+    """Simulate a scenario: plots of every sensor and the vessels' truth.
+
+    Parameters
+    ----------
+    scenario
+        The scenario (see :data:`SCENARIOS` for built-in ones).
+    seed
+        Seed of the numpy generator; the same seed gives identical arrays.
+    """
+    if not scenario.sensors:
+        raise ParameterError("a scenario needs at least one sensor", parameter="sensors")
+    children = np.random.SeedSequence(seed).spawn(len(scenario.sensors))
+    sites = [(s.config.lat_deg, s.config.lon_deg, s.config.max_range_m) for s in scenario.sensors]
+    truths = tuple(_vessel_truth(p, scenario, sites) for p in scenario.vessels)
+    parts, norths = [], []
+    for si, (sim, ss) in enumerate(zip(scenario.sensors, children, strict=True)):
+        part, north = _sensor_plots(si, sim, truths, scenario, np.random.default_rng(ss))
+        parts.append(part)
+        norths.append(north)
+    col = {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
+    t = np.round(col["time"] * 1000.0) / 1000.0
+    order = np.lexsort((col["lon"], col["lat"], col["sensor"], t))
+    sensor = col["sensor"][order].astype(np.int64)
+    rtrue = col["rtrue"][order]
+    rerr = col["rerr"][order]
+    sigma = np.full(t.size, np.nan)
+    for si, sim in enumerate(scenario.sensors):
+        if sim.emit_sigma_m:
+            m = sensor == si
+            rng_m = np.where(np.isfinite(rerr[m]), rtrue[m] + rerr[m], rtrue[m])
+            cfg = sim.config
+            sigma[m] = np.round(np.sqrt(
+                0.5 * (cfg.range_sigma_m**2 + (rng_m * np.radians(cfg.bearing_sigma_deg)) ** 2)), 2)
+    plots = PlotArrays(
+        time=t[order], sensor=sensor, lat_deg=col["lat"][order], lon_deg=col["lon"][order],
+        scan=col["scan"][order].astype(np.int64), vessel=col["vessel"][order].astype(np.int64),
+        range_error_m=rerr, bearing_error_deg=col["berr"][order], true_range_m=rtrue,
+        true_bearing_deg=col["btrue"][order], sigma_m=sigma)
+    return SimulationResult(scenario=scenario, seed=seed,
+                            sensors=tuple(s.config for s in scenario.sensors),
+                            plots=plots, truth=truths, north_times=tuple(norths))

@@ -20,8 +20,7 @@ not split it). The duration of an episode is ``time[i1] - time[i0]``.
 
 from __future__ import annotations
 
-import math
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any, ClassVar
@@ -29,10 +28,11 @@ from typing import Any, ClassVar
 import numpy as np
 from numpy.typing import NDArray
 
-from .config import KNOT_M_S, ParamSpec, RuleConfig, RuleSchema, ZoneConfig
-from .errors import InputError
-from .timefmt import format_clock
-from .zones import LocalZone
+from harbourwatch.errors import ParameterError
+from harbourwatch.io.records import RULE_SCHEMAS, ParamSpec, RuleConfig, RuleSchema
+from harbourwatch.io.timefmt import format_clock
+from harbourwatch.scene.zones import LocalZone
+from harbourwatch.units import KNOT_M_S, fmt_duration
 
 __all__ = [
     "GAP_TOLERANCE_S",
@@ -44,7 +44,6 @@ __all__ = [
     "RuleKind",
     "find_episodes",
     "register_kind",
-    "validate_rules",
 ]
 
 Array = NDArray[np.float64]
@@ -65,13 +64,12 @@ NEAR_MISS_SD = 4.0
 SURE_SD = 7.0
 
 RULE_KINDS: dict[str, type[RuleKind]] = {}
-RULE_SCHEMAS: dict[str, RuleSchema] = {}
 
 
 def register_kind(cls: type[RuleKind]) -> type[RuleKind]:
     """Class decorator: make a rule kind known to the rules file and the evaluator."""
     if not cls.kind:
-        raise ValueError(f"{cls.__name__} has no 'kind' name")
+        raise ParameterError(f"{cls.__name__} has no 'kind' name", parameter="kind")
     RULE_KINDS[cls.kind] = cls
     RULE_SCHEMAS[cls.kind] = RuleSchema(
         kind=cls.kind, params=cls.params, zone_required=cls.zone_required,
@@ -155,11 +153,6 @@ class EpisodeView:
     i0: int
     i1: int
     probability: float
-
-
-def fmt_duration(seconds: float) -> str:
-    """``"24 min"`` from one minute on, else ``"45 s"``."""
-    return f"{seconds / 60.0:.0f} min" if seconds >= 59.5 else f"{seconds:.0f} s"
 
 
 def fmt_span(t0: float, t1: float) -> str:
@@ -457,48 +450,3 @@ class Rendezvous(RuleKind):
             "closest_xy": (float(a[k, 0]), float(a[k, 2])),
             "other_closest_xy": (float(b[k, 0]), float(b[k, 2])),
         }
-
-
-def validate_rules(rules: Sequence[RuleConfig], zones: Sequence[ZoneConfig]) -> None:
-    """Check what the rules TOML schema alone cannot: kinds, zone ids, parameter values.
-
-    Raises
-    ------
-    InputError
-        Naming the rules file, the line of the offending key and the key.
-    """
-    zone_ids = {z.id for z in zones}
-    seen: dict[str, RuleConfig] = {}
-    for r in rules:
-        def err(msg: str, key: str, r: RuleConfig = r) -> InputError:
-            return InputError(msg, file=r.source or None,
-                              line=r.param_lines.get(key, r.line), field=key)
-
-        if r.id in seen:
-            raise err(f"rule id {r.id!r} is used twice", "id")
-        seen[r.id] = r
-        if r.kind not in RULE_SCHEMAS:
-            raise err(f"unknown rule kind {r.kind!r}; valid kinds: "
-                      + ", ".join(sorted(RULE_SCHEMAS)), "kind")
-        schema = RULE_SCHEMAS[r.kind]
-        if r.zone is None and schema.zone_required:
-            raise err(f"a {r.kind} rule needs a zone", "zone")
-        if r.zone is not None and r.zone not in zone_ids:
-            some = ", ".join(sorted(zone_ids)[:10]) or "(none defined)"
-            raise err(f"unknown zone {r.zone!r}; zones in the zones file: {some}", "zone")
-        if not 0.0 <= r.min_probability <= 1.0:
-            raise err(f"min_probability must be between 0 and 1, found {r.min_probability}",
-                      "min_probability")
-        for spec in schema.params:
-            if spec.name not in r.params:
-                if spec.required:
-                    raise err(f"a {r.kind} rule needs {spec.name} ({spec.description})",
-                              spec.name)
-                continue
-            v = r.params[spec.name]
-            if isinstance(v, bool) or not isinstance(v, int | float) or not np.isfinite(v):
-                raise err(f"expected a number, found {v!r}", spec.name)
-            if not spec.min_value <= v <= spec.max_value:
-                want = (f"at least {spec.min_value:g}" if math.isinf(spec.max_value) else
-                        f"between {spec.min_value:g} and {spec.max_value:g}")
-                raise err(f"expected a number {want}, found {v!r}", spec.name)

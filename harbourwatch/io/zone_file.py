@@ -10,9 +10,9 @@ from typing import Any
 
 from shapely.validation import explain_validity
 
-from ._configparse import _read_text, control_character
-from .config import ZoneConfig
-from .errors import InputError
+from harbourwatch.errors import InputError
+from harbourwatch.io.records import ZoneConfig
+from harbourwatch.io.text import control_character, read_text
 
 __all__ = ["load_zones"]
 
@@ -108,7 +108,7 @@ def load_zones(path: str | PathLike[str]) -> tuple[ZoneConfig, ...]:
     InputError
         Naming the file, line and property of the first problem.
     """
-    text = _read_text(path)
+    text = read_text(path)
     try:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:

@@ -10,7 +10,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.linalg import cho_factor, cho_solve
 
-from ..models import H, cv_transition_batch
+from harbourwatch.models.cv import H, cv_transition_batch
 
 __all__ = [
     "LOG_2PI",
@@ -20,6 +20,7 @@ __all__ = [
     "log_likelihood",
     "mahalanobis2_batch",
     "rts_smooth",
+    "backward_sample",
     "ffbs_sample",
 ]
 
@@ -120,14 +121,65 @@ def rts_smooth(
 
 
 def _safe_cholesky(P: Array) -> Array:
-    """Lower Cholesky factor of a symmetric PSD matrix, clipping tiny negative eigenvalues."""
+    """Lower Cholesky factors of symmetric PSD matrices (a stack or one), clipping tiny negative eigenvalues."""
     P = symmetrise(P)
     try:
         return np.asarray(np.linalg.cholesky(P), dtype=np.float64)
     except np.linalg.LinAlgError:
         w, V = np.linalg.eigh(P)
-        w = np.clip(w, 0.0, None)
-        return V * np.sqrt(w)
+        return np.asarray(V * np.sqrt(np.clip(w, 0.0, None))[..., None, :], dtype=np.float64)
+
+
+#: Steps of backward sampling whose noise is drawn at once (bounds memory).
+_SAMPLE_BLOCK = 256
+
+
+def backward_sample(
+    rng: np.random.Generator,
+    n: int,
+    times: Array,
+    filt_m: Array,
+    filt_P: Array,
+    pred_m: Array,
+    pred_P: Array,
+    end_m: Array,
+    end_P: Array,
+) -> Array:
+    """Joint draws of states ``0..T-1`` given all plots, by backward sampling from the last one.
+
+    ``x_{T-1} ~ N(end_m, end_P)``, then for ``k = T-2 .. 0``
+    ``x_k ~ N(m_k|k + G_k (x_k+1 - m_k+1|k), P_k|k - G_k P_k+1|k G_kᵀ)`` with
+    ``G_k = P_k|k Fᵀ P_k+1|k⁻¹`` (Carter and Kohn, Biometrika 1994;
+    Frühwirth-Schnatter, J. Time Series Analysis 1994 -- from memory for the
+    references). With ``end`` the filtered marginal of the last state this is
+    forward filtering, backward sampling of a whole trajectory; with ``end``
+    the *smoothed* marginal of a state inside a longer trajectory it draws the
+    window ending there exactly (given ``x_k+1``, earlier states do not depend
+    on later plots), at ``O(window)`` cost. Returns ``(n, T, 4)``.
+    """
+    w = times.size
+    out = np.empty((w, n, 4))  # time-major while sampling: each step writes one block
+    out[-1] = end_m + rng.standard_normal((n, 4)) @ _safe_cholesky(end_P).T
+    if w > 1:
+        F = cv_transition_batch(np.diff(times))  # F[k]: state k -> k+1
+        Pf = filt_P[:-1]
+        Pp = pred_P[1:]
+        A = Pf @ np.swapaxes(F, -1, -2)  # P_k|k Fᵀ
+        # Gᵀ = Pp⁻¹ Aᵀ (Pp symmetric): a batched solve, never an inverse
+        Gt = np.linalg.solve(Pp, np.swapaxes(A, -1, -2))
+        G = np.swapaxes(Gt, -1, -2)
+        L = _safe_cholesky(Pf - G @ Pp @ Gt)
+        # everything but the dependence on x_k+1, for all k at once
+        shift = filt_m[:-1] - (G @ pred_m[1:, :, None])[..., 0]
+        Lt = np.swapaxes(L, -1, -2)
+        # blocks of steps, latest first, so the noise never needs O(W n) memory at once
+        for b1 in range(w - 1, 0, -_SAMPLE_BLOCK):
+            b0 = max(b1 - _SAMPLE_BLOCK, 0)
+            base = shift[b0:b1, None, :] + rng.standard_normal((b1 - b0, n, 4)) @ Lt[b0:b1]
+            for k in range(b1 - 1, b0 - 1, -1):
+                np.matmul(out[k + 1], Gt[k], out=out[k])
+                out[k] += base[k - b0]
+    return np.swapaxes(out, 0, 1)
 
 
 def ffbs_sample(
@@ -139,21 +191,8 @@ def ffbs_sample(
     pred_m: Array,
     pred_P: Array,
 ) -> Array:
-    """Joint draws of a whole trajectory by forward filtering, backward sampling.
+    """Joint draws of a whole trajectory by forward filtering, backward sampling, ``(n, T, 4)``.
 
-    Returns ``(n, T, 4)`` samples from the joint Gaussian of ``x_{0:T-1}``
-    given all plots (Carter and Kohn, Biometrika 1994; Frühwirth-Schnatter,
-    J. Time Series Analysis 1994 -- from memory for the references).
+    :func:`backward_sample` started from the filtered marginal of the last state.
     """
-    T = times.size
-    F = cv_transition_batch(np.diff(times, prepend=times[0]))
-    G = _gains(filt_P, pred_P, F)
-    out = np.empty((n, T, 4))
-    L = _safe_cholesky(filt_P[-1])
-    out[:, -1] = filt_m[-1] + rng.standard_normal((n, 4)) @ L.T
-    for k in range(T - 2, -1, -1):
-        mean = filt_m[k] + (out[:, k + 1] - pred_m[k + 1]) @ G[k].T
-        cov = filt_P[k] - G[k] @ pred_P[k + 1] @ G[k].T
-        L = _safe_cholesky(cov)
-        out[:, k] = mean + rng.standard_normal((n, 4)) @ L.T
-    return out
+    return backward_sample(rng, n, times, filt_m, filt_P, pred_m, pred_P, filt_m[-1], filt_P[-1])

@@ -20,15 +20,10 @@ __all__ = [
     "ZoneConfig",
     "RuleConfig",
     "FilterSettings",
-    "KNOT_M_S",
     "ParamSpec",
     "RuleSchema",
+    "RULE_SCHEMAS",
 ]
-
-#: One international knot in metres per second (1852 m per hour; BIPM SI
-#: brochure, table 8, non-SI units).
-KNOT_M_S = 1852.0 / 3600.0
-
 
 @dataclass(frozen=True, kw_only=True)
 class SensorConfig:
@@ -67,6 +62,11 @@ class ZoneConfig:
     name: str
     kind: str
     geometry: BaseGeometry
+
+    @property
+    def kind_key(self) -> str:
+        """The kind as compared everywhere (``land``, ``entrance`` ...): trimmed, lower case."""
+        return self.kind.strip().lower()
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -114,6 +114,10 @@ class FilterSettings:
         probability over ``dt`` is ``exp(-dt / mean_lifetime_s)``.
     arrivals_per_hour
         Expected number of new vessels per hour over all covers together.
+    entrance_arrivals_per_hour
+        Extra arrivals per hour spread over the zones of kind ``entrance``
+        (harbour mouths, where vessels appear), on top of ``arrivals_per_hour``;
+        0 (the default) treats every place in cover alike.
     initial_vessels
         Expected number of vessels already present when the feed starts.
     birth_speed_sd_m_s
@@ -152,6 +156,7 @@ class FilterSettings:
     manoeuvre_duration_s: float = 60.0
     mean_lifetime_s: float = 4 * 3600.0
     arrivals_per_hour: float = 20.0
+    entrance_arrivals_per_hour: float = 0.0
     initial_vessels: float = 20.0
     birth_speed_sd_m_s: float = 5.0
     gate_probability: float = 0.9999
@@ -188,8 +193,9 @@ class RuleSchema:
     description: str = ""
 
 
-# --- parsing -----------------------------------------------------------------------------
-# The loaders live in private modules (kept small); they are re-exported here.
-from ._configparse import load_rules, load_sensors, load_zones  # noqa: E402
-
-__all__ += ["load_sensors", "load_zones", "load_rules"]
+#: The schema of every known rule kind, by kind name: what the rules TOML
+#: accepts. Filled by :func:`harbourwatch.rules.kinds.register_kind` when the
+#: kinds are imported (importing any part of harbourwatch imports them), and
+#: read by :func:`harbourwatch.io.toml_files.load_rules`, the one place rules
+#: are validated.
+RULE_SCHEMAS: dict[str, RuleSchema] = {}

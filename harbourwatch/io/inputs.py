@@ -12,16 +12,15 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from os import PathLike
 
-from .config import (
+from harbourwatch.io.feeds import PlotTable, Scan, group_scans, read_feeds
+from harbourwatch.io.records import (
     RuleConfig,
     RuleSchema,
     SensorConfig,
     ZoneConfig,
-    load_rules,
-    load_sensors,
-    load_zones,
 )
-from .feeds import PlotTable, Scan, group_scans, read_feeds
+from harbourwatch.io.toml_files import load_rules, load_sensors
+from harbourwatch.io.zone_file import load_zones
 
 __all__ = ["RunInputs", "load_inputs"]
 
@@ -37,7 +36,7 @@ class RunInputs:
     plots
         All plots, merged and sorted by time.
     scans
-        The plots grouped into scans (see :func:`harbourwatch.feeds.group_scans`).
+        The plots grouped into scans (see :func:`harbourwatch.io.feeds.group_scans`).
     feed_paths, sensors_path, zones_path, rules_path
         The input paths as given.
     """
@@ -72,10 +71,10 @@ def load_inputs(
         The sensor TOML, zones GeoJSON and rules TOML files.
     rule_schemas
         Rule kinds by name, to validate the rules strictly (see
-        :func:`harbourwatch.config.load_rules`).
+        :func:`harbourwatch.io.records.load_rules`).
     window
         Optional UTC time window ``(t0, t1)`` in epoch seconds: only plots with
-        ``t0 <= time < t1`` are kept (see :func:`harbourwatch.feeds.read_feeds`).
+        ``t0 <= time < t1`` are kept (see :func:`harbourwatch.io.feeds.read_feeds`).
 
     Raises
     ------

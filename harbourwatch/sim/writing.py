@@ -9,17 +9,17 @@ import math
 import os
 from collections.abc import Sequence
 from pathlib import Path
-from typing import TYPE_CHECKING
 
 import numpy as np
 from numpy.typing import NDArray
 
-from ._io import atomic_write_bytes
-from .config import SensorConfig
-from .timefmt import format_utc
-
-if TYPE_CHECKING:
-    from .simulate import SimulationResult
+from harbourwatch.errors import InputError
+from harbourwatch.io.atomic import atomic_write_bytes
+from harbourwatch.io.records import SensorConfig
+from harbourwatch.io.timefmt import format_utc
+from harbourwatch.sim.engine import simulate
+from harbourwatch.sim.model import SimulationResult
+from harbourwatch.sim.scenarios import SCENARIOS
 
 Array = NDArray[np.float64]
 
@@ -126,3 +126,77 @@ def truth_columns(result: SimulationResult, *, step_s: float = TRUTH_FILE_STEP_S
         return {"track": np.zeros(0, str), "time": format_utc(z), "lat": _fmt(z, 7), "lon": _fmt(z, 7)}
     return {"track": np.concatenate(names).astype(str), "time": format_utc(np.concatenate(times)),
             "lat": _fmt(np.concatenate(lats), 7), "lon": _fmt(np.concatenate(lons), 7)}
+
+
+_FEED_FORMATS = ("csv", "csv.gz", "parquet")
+
+
+def simulate_to_dir(name: str, out: str | os.PathLike[str], *, seed: int | None = None,
+                    duration_s: float | None = None, feed_format: str = "csv") -> list[Path]:
+    """Simulate a named scenario and write the contract's files into ``out``.
+
+    Writes ``plots.<feed_format>``, ``sensors.toml``, ``truth.csv`` (``.csv.gz``
+    when the feed is gzipped) and, where the scenario has them,
+    ``zones.geojson`` and ``rules.toml``. Same name, seed and duration give
+    byte-identical files.
+
+    Returns
+    -------
+    list of Path
+        The files written, in that order.
+    """
+    if name not in SCENARIOS:
+        raise InputError(f"unknown scenario {name!r}; choose one of {', '.join(SCENARIOS)}",
+                         field="--scenario")
+    if feed_format not in _FEED_FORMATS:
+        raise InputError(f"unknown feed format {feed_format!r}; choose one of "
+                         f"{', '.join(_FEED_FORMATS)}", field="--format")
+    if duration_s is not None and not duration_s > 0:
+        raise InputError(f"duration must be positive, got {duration_s!r}", field="--duration-min")
+    spec = SCENARIOS[name]
+    seed = spec.default_seed if seed is None else int(seed)
+    scenario = spec.build(seed, duration_s)
+    result = simulate(scenario, seed)
+    outdir = Path(out)
+    outdir.mkdir(parents=True, exist_ok=True)
+    written: list[Path] = []
+
+    pc = plots_columns(result)
+    feed = outdir / f"plots.{feed_format}"
+    if feed_format == "parquet":
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        p = result.plots
+        data = {"time": pa.array(pc["time"].tolist(), pa.string()),
+                "sensor": pa.array(pc["sensor"].tolist(), pa.string()),
+                "lat": pa.array(p.lat_deg), "lon": pa.array(p.lon_deg),
+                "scan": pa.array(p.scan)}
+        if "sigma_m" in pc:
+            data["sigma_m"] = pa.array(p.sigma_m)
+        buf = io.BytesIO()
+        pq.write_table(pa.table(data), buf)
+        _write_atomic(feed, buf.getvalue())
+    else:
+        raw = _csv_bytes(list(pc), list(pc.values()))
+        _write_atomic(feed, _gzip(raw) if feed_format == "csv.gz" else raw)
+    written.append(feed)
+    written.append(write_sensors_toml(result.sensors, outdir / "sensors.toml"))
+    tc = truth_columns(result)
+    raw = _csv_bytes(list(tc), list(tc.values()))
+    if feed_format == "csv.gz":
+        truth_path = outdir / "truth.csv.gz"
+        _write_atomic(truth_path, _gzip(raw))
+    else:
+        truth_path = outdir / "truth.csv"
+        _write_atomic(truth_path, raw)
+    written.append(truth_path)
+    if scenario.zones_geojson is not None:
+        zp = outdir / "zones.geojson"
+        _write_atomic(zp, scenario.zones_geojson.encode("utf-8"))
+        written.append(zp)
+    if scenario.rules_toml is not None:
+        rp = outdir / "rules.toml"
+        _write_atomic(rp, scenario.rules_toml.encode("utf-8"))
+        written.append(rp)
+    return written

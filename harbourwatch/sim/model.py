@@ -2,7 +2,7 @@
 
 A scenario is declarative: :class:`VesselPlan` records (a start, then
 :class:`Leg` records: straight, turn, speed change, stop, go-to-waypoint)
-and :class:`SimSensor` records (a :class:`~harbourwatch.config.SensorConfig`
+and :class:`SimSensor` records (a :class:`~harbourwatch.io.records.SensorConfig`
 plus simulation-only extras such as outages). :func:`simulate` turns a
 :class:`Scenario` and a seed into plots and truth held in columnar arrays;
 :func:`simulate_to_dir` writes the contract's files.
@@ -28,33 +28,15 @@ plots per revolution, uniform over the cover disc.
 
 from __future__ import annotations
 
-import io
 import math
-import os
 from collections.abc import Callable
 from dataclasses import dataclass
-from pathlib import Path
-from typing import TYPE_CHECKING
 
 import numpy as np
 from numpy.typing import NDArray
 
-from ._simengine import ARPA_ERRORS, TRUTH_STEP_S, _sensor_plots, _vessel_truth, arpa_sigmas
-from ._simwrite import (
-    TRUTH_FILE_STEP_S,
-    _csv_bytes,
-    _gzip,
-    _write_atomic,
-    plots_columns,
-    sensors_to_toml,
-    truth_columns,
-    write_sensors_toml,
-)
-from .config import SensorConfig
-from .errors import InputError
-
-if TYPE_CHECKING:
-    from ._scenarios import SCENARIOS
+from harbourwatch.errors import ParameterError
+from harbourwatch.io.records import SensorConfig
 
 __all__ = [
     "Leg",
@@ -65,17 +47,6 @@ __all__ = [
     "PlotArrays",
     "VesselTruth",
     "SimulationResult",
-    "simulate",
-    "simulate_to_dir",
-    "sensors_to_toml",
-    "write_sensors_toml",
-    "SCENARIOS",
-    "TRUTH_STEP_S",
-    "TRUTH_FILE_STEP_S",
-    "ARPA_ERRORS",
-    "arpa_sigmas",
-    "plots_columns",
-    "truth_columns",
 ]
 
 Array = NDArray[np.float64]
@@ -109,15 +80,15 @@ class Leg:
 
     def __post_init__(self) -> None:
         if self.kind not in _LEG_KINDS:
-            raise ValueError(f"leg kind {self.kind!r} is not one of {', '.join(_LEG_KINDS)}")
+            raise ParameterError(f"leg kind {self.kind!r} is not one of {', '.join(_LEG_KINDS)}", parameter="kind")
         if self.duration_s is not None and self.duration_s < 0:
-            raise ValueError("leg duration_s must be >= 0")
+            raise ParameterError("must be >= 0", parameter="duration_s")
         if self.kind in ("turn", "speed") and self.duration_s is None:
-            raise ValueError(f"a {self.kind} leg needs duration_s")
+            raise ParameterError(f"a {self.kind} leg needs it", parameter="duration_s")
         if self.kind == "speed" and (self.speed_kn is None or self.speed_kn < 0):
-            raise ValueError("a speed leg needs speed_kn >= 0")
+            raise ParameterError("a speed leg needs speed_kn >= 0", parameter="speed_kn")
         if self.kind == "goto" and (self.lat_deg is None or self.lon_deg is None):
-            raise ValueError("a goto leg needs lat_deg and lon_deg")
+            raise ParameterError("a goto leg needs lat_deg and lon_deg", parameter="lat_deg")
 
     @classmethod
     def straight(cls, duration_s: float | None = None) -> Leg:
@@ -282,135 +253,3 @@ class SimulationResult:
     @property
     def end_epoch_s(self) -> float:
         return self.scenario.start_epoch_s + self.scenario.duration_s
-
-
-# --------------------------------------------------------------------------- simulation
-
-
-def simulate(scenario: Scenario, seed: int) -> SimulationResult:
-    """Simulate a scenario: plots of every sensor and the vessels' truth.
-
-    Parameters
-    ----------
-    scenario
-        The scenario (see :data:`SCENARIOS` for built-in ones).
-    seed
-        Seed of the numpy generator; the same seed gives identical arrays.
-    """
-    if not scenario.sensors:
-        raise ValueError("a scenario needs at least one sensor")
-    children = np.random.SeedSequence(seed).spawn(len(scenario.sensors))
-    sites = [(s.config.lat_deg, s.config.lon_deg, s.config.max_range_m) for s in scenario.sensors]
-    truths = tuple(_vessel_truth(p, scenario, sites) for p in scenario.vessels)
-    parts, norths = [], []
-    for si, (sim, ss) in enumerate(zip(scenario.sensors, children, strict=True)):
-        part, north = _sensor_plots(si, sim, truths, scenario, np.random.default_rng(ss))
-        parts.append(part)
-        norths.append(north)
-    col = {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
-    t = np.round(col["time"] * 1000.0) / 1000.0
-    order = np.lexsort((col["lon"], col["lat"], col["sensor"], t))
-    sensor = col["sensor"][order].astype(np.int64)
-    rtrue = col["rtrue"][order]
-    rerr = col["rerr"][order]
-    sigma = np.full(t.size, np.nan)
-    for si, sim in enumerate(scenario.sensors):
-        if sim.emit_sigma_m:
-            m = sensor == si
-            rng_m = np.where(np.isfinite(rerr[m]), rtrue[m] + rerr[m], rtrue[m])
-            cfg = sim.config
-            sigma[m] = np.round(np.sqrt(
-                0.5 * (cfg.range_sigma_m**2 + (rng_m * np.radians(cfg.bearing_sigma_deg)) ** 2)), 2)
-    plots = PlotArrays(
-        time=t[order], sensor=sensor, lat_deg=col["lat"][order], lon_deg=col["lon"][order],
-        scan=col["scan"][order].astype(np.int64), vessel=col["vessel"][order].astype(np.int64),
-        range_error_m=rerr, bearing_error_deg=col["berr"][order], true_range_m=rtrue,
-        true_bearing_deg=col["btrue"][order], sigma_m=sigma)
-    return SimulationResult(scenario=scenario, seed=seed,
-                            sensors=tuple(s.config for s in scenario.sensors),
-                            plots=plots, truth=truths, north_times=tuple(norths))
-
-
-_FEED_FORMATS = ("csv", "csv.gz", "parquet")
-
-
-def simulate_to_dir(name: str, out: str | os.PathLike[str], *, seed: int | None = None,
-                    duration_s: float | None = None, feed_format: str = "csv") -> list[Path]:
-    """Simulate a named scenario and write the contract's files into ``out``.
-
-    Writes ``plots.<feed_format>``, ``sensors.toml``, ``truth.csv`` (``.csv.gz``
-    when the feed is gzipped) and, where the scenario has them,
-    ``zones.geojson`` and ``rules.toml``. Same name, seed and duration give
-    byte-identical files.
-
-    Returns
-    -------
-    list of Path
-        The files written, in that order.
-    """
-    from ._scenarios import SCENARIOS
-
-    if name not in SCENARIOS:
-        raise InputError(f"unknown scenario {name!r}; choose one of {', '.join(SCENARIOS)}",
-                         field="--scenario")
-    if feed_format not in _FEED_FORMATS:
-        raise InputError(f"unknown feed format {feed_format!r}; choose one of "
-                         f"{', '.join(_FEED_FORMATS)}", field="--format")
-    if duration_s is not None and not duration_s > 0:
-        raise InputError(f"duration must be positive, got {duration_s!r}", field="--duration-min")
-    spec = SCENARIOS[name]
-    seed = spec.default_seed if seed is None else int(seed)
-    scenario = spec.build(seed, duration_s)
-    result = simulate(scenario, seed)
-    outdir = Path(out)
-    outdir.mkdir(parents=True, exist_ok=True)
-    written: list[Path] = []
-
-    pc = plots_columns(result)
-    feed = outdir / f"plots.{feed_format}"
-    if feed_format == "parquet":
-        import pyarrow as pa
-        import pyarrow.parquet as pq
-
-        p = result.plots
-        data = {"time": pa.array(pc["time"].tolist(), pa.string()),
-                "sensor": pa.array(pc["sensor"].tolist(), pa.string()),
-                "lat": pa.array(p.lat_deg), "lon": pa.array(p.lon_deg),
-                "scan": pa.array(p.scan)}
-        if "sigma_m" in pc:
-            data["sigma_m"] = pa.array(p.sigma_m)
-        buf = io.BytesIO()
-        pq.write_table(pa.table(data), buf)
-        _write_atomic(feed, buf.getvalue())
-    else:
-        raw = _csv_bytes(list(pc), list(pc.values()))
-        _write_atomic(feed, _gzip(raw) if feed_format == "csv.gz" else raw)
-    written.append(feed)
-    written.append(write_sensors_toml(result.sensors, outdir / "sensors.toml"))
-    tc = truth_columns(result)
-    raw = _csv_bytes(list(tc), list(tc.values()))
-    if feed_format == "csv.gz":
-        truth_path = outdir / "truth.csv.gz"
-        _write_atomic(truth_path, _gzip(raw))
-    else:
-        truth_path = outdir / "truth.csv"
-        _write_atomic(truth_path, raw)
-    written.append(truth_path)
-    if scenario.zones_geojson is not None:
-        zp = outdir / "zones.geojson"
-        _write_atomic(zp, scenario.zones_geojson.encode("utf-8"))
-        written.append(zp)
-    if scenario.rules_toml is not None:
-        rp = outdir / "rules.toml"
-        _write_atomic(rp, scenario.rules_toml.encode("utf-8"))
-        written.append(rp)
-    return written
-
-
-def __getattr__(name: str) -> object:
-    # the registry lives in _scenarios (which imports this module): load it lazily
-    if name == "SCENARIOS":
-        from ._scenarios import SCENARIOS
-
-        return SCENARIOS
-    raise AttributeError(name)

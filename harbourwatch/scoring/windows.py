@@ -1,6 +1,6 @@
 """Trajectory GOSPA of long feeds, solved in time windows with certified bounds.
 
-The linear program of :func:`harbourwatch.metrics.trajectory_gospa` couples
+The linear program of :func:`harbourwatch.scoring.metrics.trajectory_gospa` couples
 every time step of a cluster of trajectories; over a whole shift in a busy
 harbour nearly every vessel joins one cluster and the program grows past
 what a solver handles in reasonable time (a 6-hour benchmark did not finish
@@ -28,9 +28,9 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 import numpy as np
-from numpy.typing import ArrayLike
+from numpy.typing import ArrayLike, NDArray
 
-from .metrics import TGospaResult, trajectory_gospa
+from harbourwatch.scoring.metrics import TGospaResult, trajectory_gospa
 
 __all__ = ["trajectory_gospa_windowed"]
 
@@ -43,7 +43,7 @@ def trajectory_gospa_windowed(
     Parameters
     ----------
     X, Y, c, p, gamma
-        As :func:`harbourwatch.metrics.trajectory_gospa`.
+        As :func:`harbourwatch.scoring.metrics.trajectory_gospa`.
     cuts
         Grid steps where a new window starts (0 and ``T`` are implied;
         others outside ``(0, T)`` are ignored).
@@ -124,8 +124,9 @@ def _carried(r: TGospaResult, *, last: bool) -> np.ndarray:
     return np.where(span[:, 0] < 0, -1, out)
 
 
-def _boundary_switches(  # type: ignore[no-untyped-def]
-    a_end, b_start, truth_before, est_before, truth_after, est_after
+def _boundary_switches(
+    a_end: NDArray[np.intp], b_start: NDArray[np.intp], truth_before: ArrayLike,
+    est_before: ArrayLike, truth_after: ArrayLike, est_after: ArrayLike,
 ) -> int:
     """Unit weight changes ``Σ|ΔW|`` between two windows' 0/1 assignments.
 
@@ -135,6 +136,8 @@ def _boundary_switches(  # type: ignore[no-untyped-def]
     at no cost); joining ``b`` costs one unit unless neither was ever
     assigned before (the pair is then assigned from the start of the feed).
     """
+    truth_before, est_before = np.asarray(truth_before, bool), np.asarray(est_before, bool)
+    truth_after, est_after = np.asarray(truth_after, bool), np.asarray(est_after, bool)
     units = 0
     for i in np.flatnonzero(a_end != b_start).tolist():
         a, b = int(a_end[i]), int(b_start[i])

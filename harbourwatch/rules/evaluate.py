@@ -1,6 +1,6 @@
 """Geofence rules over whole trajectories, with a probability on every alert.
 
-How an alert is found (see :mod:`harbourwatch._rule_kinds` for the kinds and
+How an alert is found (see :mod:`harbourwatch.rules.kinds` for the kinds and
 the episode convention; brief excursions up to ``GAP_TOLERANCE_S`` = 30 s do
 not split an episode):
 
@@ -50,8 +50,12 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from ._io import atomic_open
-from ._rule_kinds import (
+from harbourwatch.errors import ParameterError
+from harbourwatch.io.atomic import atomic_open
+from harbourwatch.io.records import RuleConfig, ZoneConfig
+from harbourwatch.io.timefmt import format_clock, format_utc
+from harbourwatch.models.gaussian import backward_sample
+from harbourwatch.rules.kinds import (
     GAP_TOLERANCE_S,
     NEAR_MISS_SD,
     RULE_KINDS,
@@ -62,13 +66,9 @@ from ._rule_kinds import (
     find_episodes,
     position_sd_bound,
     register_kind,
-    validate_rules,
 )
-from .config import RuleConfig, ZoneConfig
-from .models import cv_transition_batch
-from .timefmt import format_clock, format_utc
-from .trajectories import Trajectory, TrajectorySet
-from .zones import LocalZone, local_zones
+from harbourwatch.scene.zones import LocalZone, local_zones
+from harbourwatch.trajectories import Trajectory, TrajectorySet
 
 __all__ = [
     "Alert",
@@ -84,7 +84,6 @@ __all__ = [
     "evaluate_rules",
     "register_kind",
     "sample_window",
-    "validate_rules",
     "write_alerts_csv",
 ]
 
@@ -95,8 +94,6 @@ DEFAULT_SAMPLES = 200
 #: Seconds added before and after each candidate run before sampling, so
 #: that a crossing's "outside before / after" states are part of the window.
 WINDOW_PAD_S = 60.0
-#: Steps of backward sampling whose noise is drawn at once (bounds memory).
-_SAMPLE_BLOCK = 256
 #: Time bin of the rendezvous pair search, seconds.
 PAIR_BIN_S = 300.0
 #: Columns of ``alerts.csv``, in order (the file contract).
@@ -140,49 +137,16 @@ class Alert:
 
 
 # --------------------------------------------------------------------------- sampling
-def _cholesky_batch(C: Array) -> Array:
-    """Factors ``L`` with ``L Lᵀ = C`` for a stack of symmetric PSD matrices."""
-    C = 0.5 * (C + np.swapaxes(C, -1, -2))
-    try:
-        return np.asarray(np.linalg.cholesky(C), dtype=np.float64)
-    except np.linalg.LinAlgError:
-        w, V = np.linalg.eigh(C)
-        return np.asarray(V * np.sqrt(np.clip(w, 0.0, None))[..., None, :], dtype=np.float64)
-
-
 def sample_window(traj: Trajectory, rng: np.random.Generator, n: int, i0: int, i1: int) -> Array:
     """``n`` joint draws of states ``i0..i1`` of ``traj`` given all plots, ``(n, W, 4)``.
 
-    Backward sampling started from the *smoothed* marginal at ``i1``:
-    ``x_i1 ~ N(m^s_i1, P^s_i1)``, then for ``k = i1-1 .. i0``
-    ``x_k ~ N(m_k|k + G_k (x_k+1 - m_k+1|k), P_k|k - G_k P_k+1|k G_kᵀ)``.
-    Given ``x_k+1`` the earlier states do not depend on later plots, so this
-    is exact for the window and costs ``O(W)`` instead of ``O(T)``.
+    :func:`~harbourwatch.models.gaussian.backward_sample` over the window,
+    started from the *smoothed* marginal at ``i1``: exact for the window, at
+    ``O(W)`` instead of ``O(T)`` cost.
     """
-    w = i1 - i0 + 1
-    out = np.empty((w, n, 4))  # time-major while sampling: each step writes one block
-    L_end = _cholesky_batch(traj.cov[i1][None])[0]
-    out[-1] = traj.mean[i1] + rng.standard_normal((n, 4)) @ L_end.T
-    if w > 1:
-        F = cv_transition_batch(np.diff(traj.time[i0 : i1 + 1]))  # F[k]: state k -> k+1
-        Pf = traj.filt_cov[i0:i1]
-        Pp = traj.pred_cov[i0 + 1 : i1 + 1]
-        A = Pf @ np.swapaxes(F, -1, -2)  # P_k|k Fᵀ
-        # Gᵀ = Pp⁻¹ Aᵀ (Pp symmetric): a batched solve, never an inverse
-        Gt = np.linalg.solve(Pp, np.swapaxes(A, -1, -2))
-        G = np.swapaxes(Gt, -1, -2)
-        L = _cholesky_batch(Pf - G @ Pp @ Gt)
-        # everything but the dependence on x_k+1, for all k at once
-        shift = traj.filt_mean[i0:i1] - (G @ traj.pred_mean[i0 + 1 : i1 + 1, :, None])[..., 0]
-        Lt = np.swapaxes(L, -1, -2)
-        # blocks of steps, latest first, so the noise never needs O(W n) memory at once
-        for b1 in range(w - 1, 0, -_SAMPLE_BLOCK):
-            b0 = max(b1 - _SAMPLE_BLOCK, 0)
-            base = shift[b0:b1, None, :] + rng.standard_normal((b1 - b0, n, 4)) @ Lt[b0:b1]
-            for k in range(b1 - 1, b0 - 1, -1):
-                np.matmul(out[k + 1], Gt[k], out=out[k])
-                out[k] += base[k - b0]
-    return np.swapaxes(out, 0, 1)
+    sl = slice(i0, i1 + 1)
+    return backward_sample(rng, n, traj.time[sl], traj.filt_mean[sl], traj.filt_cov[sl],
+                           traj.pred_mean[sl], traj.pred_cov[sl], traj.mean[i1], traj.cov[i1])
 
 
 def _rng(seed: int, *keys: str) -> np.random.Generator:
@@ -409,7 +373,7 @@ def _evaluate_pair(
 
 def evaluate_rules(
     trajectories: TrajectorySet,
-    zones: Sequence[ZoneConfig],
+    zones: Mapping[str, LocalZone] | Sequence[ZoneConfig],
     rules: Sequence[RuleConfig],
     *,
     seed: int = 0,
@@ -434,12 +398,12 @@ def evaluate_rules(
         Sorted by ``(start, rule, track, other_track)``.
     """
     if n_samples < 1:
-        raise ValueError("n_samples must be at least 1")
-    validate_rules(rules, zones)
-    used = {r.zone for r in rules if r.zone is not None}
-    local: dict[str, LocalZone] = local_zones(
-        [z for z in zones if z.id in used], trajectories.frame
-    )
+        raise ParameterError("must be at least 1", parameter="n_samples")
+    if isinstance(zones, Mapping):
+        local: Mapping[str, LocalZone] = zones
+    else:
+        used = {r.zone for r in rules if r.zone is not None}
+        local = local_zones([z for z in zones if z.id in used], trajectories.frame)
     trajs = sorted(trajectories.trajectories, key=lambda tr: tr.id)
     alerts: list[Alert] = []
     for rule in rules:

@@ -1,6 +1,6 @@
 """Reading the two CSV files of ``harbourwatch score`` (tracks and ground truth).
 
-Private helper of :mod:`harbourwatch.scoring`: columnar rows with their line
+Private helper of :mod:`harbourwatch.scoring.score`: columnar rows with their line
 numbers, validated once here (file, line and field in every error).
 """
 
@@ -18,7 +18,7 @@ from os import PathLike, fspath
 import numpy as np
 from numpy.typing import NDArray
 
-from .errors import InputError
+from harbourwatch.errors import InputError
 
 __all__ = ["ScoreTable", "read_score_csv", "group_by_track"]
 

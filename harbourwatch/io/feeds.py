@@ -25,10 +25,10 @@ import numpy as np
 import pandas as pd
 from numpy.typing import NDArray
 
-from ._feedcols import Problem, Table, parse_sensor, parse_time, read_table
-from ._feedcols import parse_float as _parse_float
-from .config import SensorConfig
-from .errors import InputError
+from harbourwatch.errors import InputError
+from harbourwatch.io.records import SensorConfig
+from harbourwatch.io.table_reader import Problem, Table, parse_sensor, parse_time, read_table
+from harbourwatch.io.table_reader import parse_float as _parse_float
 
 __all__ = ["PlotTable", "Scan", "read_feeds", "group_scans"]
 

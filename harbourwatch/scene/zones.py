@@ -1,6 +1,6 @@
 """Geofence zones carried into the run's local frame, once.
 
-A :class:`LocalZone` is a :class:`~harbourwatch.config.ZoneConfig` whose
+A :class:`LocalZone` is a :class:`~harbourwatch.io.records.ZoneConfig` whose
 polygon (with holes, or a MultiPolygon) has been moved into the local
 east/north metre frame. The WGS84 polygon's edges are straight lines in
 longitude/latitude (as GeoJSON and shapely read them); they are densified to
@@ -18,8 +18,8 @@ import shapely
 from numpy.typing import ArrayLike, NDArray
 from shapely.geometry.base import BaseGeometry
 
-from .config import ZoneConfig
-from .geodesy import LocalFrame
+from harbourwatch.io.records import ZoneConfig
+from harbourwatch.scene.geodesy import LocalFrame
 
 __all__ = ["LocalZone", "local_zones", "DENSIFY_M"]
 
@@ -48,6 +48,11 @@ class LocalZone:
     name: str
     kind: str
     polygon: BaseGeometry
+
+    @property
+    def kind_key(self) -> str:
+        """The kind as compared everywhere: trimmed, lower case."""
+        return self.kind.strip().lower()
 
     @classmethod
     def from_config(cls, zone: ZoneConfig, frame: LocalFrame) -> LocalZone:

@@ -26,6 +26,8 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from pyproj import CRS, Geod, Transformer
 
+from harbourwatch.errors import ParameterError
+
 __all__ = ["LocalFrame", "WGS84_GEOD"]
 
 #: The WGS84 ellipsoid's geodesic solver (Karney's algorithm, in pyproj).
@@ -72,7 +74,7 @@ class LocalFrame:
         lat = np.asarray(list(lats_deg), dtype=float)
         lon = np.asarray(list(lons_deg), dtype=float)
         if lat.size == 0:
-            raise ValueError("need at least one point to centre the frame")
+            raise ParameterError("need at least one point to centre the frame", parameter="lat_deg")
         # circular mean of longitudes so that frames across the antimeridian work
         lon0 = float(np.degrees(np.arctan2(np.sin(np.radians(lon)).mean(),
                                            np.cos(np.radians(lon)).mean())))

@@ -38,8 +38,11 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy import sparse
-from scipy.optimize import linear_sum_assignment, linprog
+from scipy.optimize import linear_sum_assignment
 from scipy.sparse.csgraph import connected_components
+
+from harbourwatch.errors import ParameterError
+from harbourwatch.scoring._lp import TGospaParts, add_component, interacting_pairs
 
 __all__ = [
     "GospaResult",
@@ -52,7 +55,6 @@ __all__ = [
 Array = NDArray[np.float64]
 
 # LP weights closer than this to 0 or 1 are snapped before decomposing.
-_SNAP = 1e-7
 
 
 def _as_points(a: ArrayLike, name: str) -> Array:
@@ -60,15 +62,15 @@ def _as_points(a: ArrayLike, name: str) -> Array:
     if arr.size == 0:
         return arr.reshape(0, arr.shape[-1] if arr.ndim == 2 else 2)
     if arr.ndim != 2:
-        raise ValueError(f"{name} must have shape (n, d), got {arr.shape}")
+        raise ParameterError(f"must have shape (n, d), got {arr.shape}", parameter=name)
     return arr
 
 
 def _check_params(c: float, p: float) -> None:
     if not (np.isfinite(c) and c > 0):
-        raise ValueError(f"cut-off c must be a positive number, got {c!r}")
+        raise ParameterError(f"cut-off c must be a positive number, got {c!r}", parameter="c")
     if not (np.isfinite(p) and p >= 1):
-        raise ValueError(f"order p must be a number >= 1, got {p!r}")
+        raise ParameterError(f"order p must be a number >= 1, got {p!r}", parameter="p")
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -187,7 +189,7 @@ class TGospaResult:
         may be carried on there at no cost.
     lower, windows
         When the LP was solved in time windows (see
-        :func:`harbourwatch.tgospa_windows.trajectory_gospa_windowed`):
+        :func:`harbourwatch.scoring.windows.trajectory_gospa_windowed`):
         a lower bound of the metric and the number of windows; ``value`` is
         then the cost of a feasible assignment, an upper bound. Solved whole:
         ``lower == value`` and ``windows == 1``.
@@ -220,88 +222,8 @@ class TGospaResult:
 def _as_traj(a: ArrayLike, name: str) -> Array:
     arr = np.asarray(a, dtype=float)
     if arr.ndim != 3 or arr.shape[-1] < 1:
-        raise ValueError(f"{name} must have shape (n, T, d), got {arr.shape}")
+        raise ParameterError(f"must have shape (n, T, d), got {arr.shape}", parameter=name)
     return arr
-
-
-def _interacting_pairs(X: Array, Y: Array, c: float) -> NDArray[np.bool_]:
-    """``(nx, ny)``: pairs that are both present and closer than ``c`` at some step."""
-    nx, T, _ = X.shape
-    ny = Y.shape[0]
-    out = np.zeros((nx, ny), dtype=bool)
-    if nx == 0 or ny == 0:
-        return out
-    chunk = max(1, 2_000_000 // max(1, nx * ny))  # bound memory to a few tens of MB
-    for t0 in range(0, T, chunk):
-        xs = X[:, t0:t0 + chunk]
-        ys = Y[:, t0:t0 + chunk]
-        d2 = ((xs[:, None] - ys[None, :]) ** 2).sum(axis=-1)  # NaN where either absent
-        with np.errstate(invalid="ignore"):
-            out |= (d2 < c * c).any(axis=-1)
-    return out
-
-
-def _solve_component(
-    X: Array, Y: Array, ex: NDArray[np.bool_], ey: NDArray[np.bool_],
-    ei: NDArray[np.intp], ej: NDArray[np.intp], *, c: float, p: float, gamma: float,
-) -> tuple[Array, int]:
-    """LP of one cluster on its own time window, costs scaled by ``1 / c**p``.
-
-    Returns the weights ``(L, E + a + b)`` per step (edges, missed, false) and
-    the number of LP variables. Variables per step: ``W_e`` for the E
-    interacting pairs, ``u_i`` (truth i unassigned), ``v_j`` (estimate j
-    unassigned); then ``W_e^{t+1} - W_e^t = h+ - h-`` with ``h+, h- >= 0``, both
-    costing ``gamma**p / 2``: at the optimum one of them is zero, so
-    ``h+ + h- = |W_e^{t+1} - W_e^t|``. This equality form gives the same optimum
-    as the ``h >= +-(W^{t+1} - W^t)`` inequality form and solves several times
-    faster with HiGHS on crowded clusters (measured).
-    """
-    a, L, _ = X.shape
-    b = Y.shape[0]
-    E = len(ei)
-    s = E + a + b
-    n_w = L * s
-    n_h = (L - 1) * E
-    n_var = n_w + 2 * n_h
-    tt = np.arange(L)[:, None]
-
-    # cost per step (scaled by 1 / c**p): pair, unassigned truth, unassigned estimate
-    both = ex[ei] & ey[ej]                                         # (E, L)
-    d = np.sqrt(((X[ei] - Y[ej]) ** 2).sum(axis=-1))               # NaN where absent
-    pair_cost = np.where(both, np.minimum(np.nan_to_num(d, nan=c) / c, 1.0) ** p,
-                         0.5 * (ex[ei] ^ ey[ej]))
-    cost = np.concatenate([pair_cost.T, 0.5 * ex.T, 0.5 * ey.T], axis=1).ravel()
-    cost = np.concatenate([cost, np.full(2 * n_h, 0.5 * (gamma / c) ** p)])
-
-    # assignment rows per step: a truth rows then b estimate rows, each summing to one
-    e_idx = np.arange(E)[None, :]
-    n_rows = L * (a + b)
-    rows = [(tt * (a + b) + ei[None, :]).ravel(),                  # W_e in truth row
-            (tt * (a + b) + a + ej[None, :]).ravel(),              # W_e in estimate row
-            (tt * (a + b) + np.arange(a)[None, :]).ravel(),        # u_i
-            (tt * (a + b) + a + np.arange(b)[None, :]).ravel()]    # v_j
-    cols = [(tt * s + e_idx).ravel(),
-            (tt * s + e_idx).ravel(),
-            (tt * s + E + np.arange(a)[None, :]).ravel(),
-            (tt * s + E + a + np.arange(b)[None, :]).ravel()]
-    vals = [np.ones(len(r)) for r in rows]
-    if n_h:
-        # switch rows: W^{t+1}_e - W^t_e - h+ + h- = 0
-        w_now = (np.arange(L - 1)[:, None] * s + e_idx).ravel()
-        r = n_rows + np.arange(n_h)
-        h_plus = n_w + np.arange(n_h)
-        rows += [r, r, r, r]
-        cols += [w_now + s, w_now, h_plus, h_plus + n_h]
-        vals += [np.ones(n_h), -np.ones(n_h), -np.ones(n_h), np.ones(n_h)]
-    A_eq = sparse.csr_array((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
-                            shape=(n_rows + n_h, n_var))
-    b_eq = np.concatenate([np.ones(n_rows), np.zeros(n_h)])
-    res = linprog(cost, A_eq=A_eq, b_eq=b_eq, bounds=(0, None), method="highs")
-    if res.status != 0:  # pragma: no cover - the LP is always feasible and bounded
-        raise RuntimeError(f"trajectory GOSPA LP failed: {res.message}")
-    w = np.clip(res.x[:n_w], 0.0, 1.0).reshape(L, s)
-    w = np.where(np.abs(w - np.round(w)) < _SNAP, np.round(w), w)
-    return w, n_var
 
 
 def trajectory_gospa(
@@ -342,88 +264,65 @@ def trajectory_gospa(
     ``c**p / 2`` per present step in closed form; each remaining connected
     cluster is solved with HiGHS on its own time window.
     """
-    _check_params(c, p)
-    if not (np.isfinite(gamma) and gamma > 0):
-        raise ValueError(f"switching cost gamma must be a positive number, got {gamma!r}")
-    Xa = _as_traj(X, "X")
-    Ya = _as_traj(Y, "Y")
+    Xa, Ya = _tgospa_inputs(X, Y, c=c, p=p, gamma=gamma)
     nx, T = Xa.shape[:2]
-    ny = Ya.shape[0]
-    if Ya.shape[1] != T:
-        raise ValueError(f"X and Y must share the time grid: T = {T} and {Ya.shape[1]}")
-    if Ya.shape[2] != Xa.shape[2]:
-        raise ValueError("X and Y must have the same state dimension")
     ex = np.asarray(~np.isnan(Xa).any(axis=-1), dtype=bool)       # (nx, T)
     ey = np.asarray(~np.isnan(Ya).any(axis=-1), dtype=bool)       # (ny, T)
     half = c**p / 2.0
-
-    loc_t = np.zeros(T)
-    missed_t = half * ex.sum(axis=0).astype(float)
-    false_t = half * ey.sum(axis=0).astype(float)
-    switch_t = np.zeros(max(T - 1, 0))
-    assignment = np.full((T, nx), -1, dtype=np.intp)
-    span = np.full((nx, 2), -1, dtype=np.intp)
-    matched = np.zeros((T, nx), dtype=bool)
-    fractional = False
-    n_comp = 0
-    largest = 0
-
-    inter = _interacting_pairs(Xa, Ya, c)
+    acc = TGospaParts(
+        loc_t=np.zeros(T),
+        missed_t=half * ex.sum(axis=0).astype(float),
+        false_t=half * ey.sum(axis=0).astype(float),
+        switch_t=np.zeros(max(T - 1, 0)),
+        assignment=np.full((T, nx), -1, dtype=np.intp),
+        span=np.full((nx, 2), -1, dtype=np.intp),
+        matched=np.zeros((T, nx), dtype=bool),
+    )
+    inter = interacting_pairs(Xa, Ya, c)
     if inter.any():
         gi, gj = np.nonzero(inter)
-        graph = sparse.coo_array((np.ones(len(gi)), (gi, nx + gj)), shape=(nx + ny, nx + ny))
+        graph = sparse.coo_array((np.ones(len(gi)), (gi, nx + gj)),
+                                 shape=(nx + Ya.shape[0], nx + Ya.shape[0]))
         _, labels = connected_components(graph, directed=False)
         comp_of_edge = labels[gi]
         for comp in np.unique(comp_of_edge):
             sel = comp_of_edge == comp
-            ci = np.unique(gi[sel])
-            cj = np.unique(gj[sel])
-            present = ex[ci].any(axis=0) | ey[cj].any(axis=0)
-            steps = np.nonzero(present)[0]
-            t0, t1 = int(steps[0]), int(steps[-1]) + 1
-            span[ci] = (t0, t1)
-            ei = np.searchsorted(ci, gi[sel])
-            ej = np.searchsorted(cj, gj[sel])
-            Xc, Yc = Xa[ci, t0:t1], Ya[cj, t0:t1]
-            exc, eyc = ex[ci, t0:t1], ey[cj, t0:t1]
-            w, n_var = _solve_component(Xc, Yc, exc, eyc, ei, ej, c=c, p=p, gamma=gamma)
-            n_comp += 1
-            largest = max(largest, n_var)
-            E, a = len(ei), len(ci)
-            W = w[:, :E].T                                           # (E, L)
-            U = w[:, E:E + a].T                                      # (a, L)
-            V = w[:, E + a:].T                                       # (b, L)
-            fractional |= bool(np.any((w > 0) & (w < 1)))
-            both = exc[ei] & eyc[ej]
-            d = np.sqrt(((Xc[ei] - Yc[ej]) ** 2).sum(axis=-1))
-            with np.errstate(invalid="ignore"):
-                close = both & (d < c)
-            far = both & ~close
-            x_only = exc[ei] & ~eyc[ej]
-            y_only = eyc[ej] & ~exc[ei]
-            sl = slice(t0, t1)
-            # replace the closed-form unassigned costs of this cluster by the LP's split
-            missed_t[sl] -= half * exc.sum(axis=0)
-            false_t[sl] -= half * eyc.sum(axis=0)
-            loc_t[sl] += (W * np.where(close, np.nan_to_num(d) ** p, 0.0)).sum(axis=0)
-            missed_t[sl] += half * ((U * exc).sum(axis=0) + (W * (x_only | far)).sum(axis=0))
-            false_t[sl] += half * ((V * eyc).sum(axis=0) + (W * (y_only | far)).sum(axis=0))
-            if t1 - t0 > 1:
-                switch_t[t0:t1 - 1] += 0.5 * gamma**p * np.abs(np.diff(W, axis=1)).sum(axis=0)
-            on = W > 0.5
-            ke, kt = np.nonzero(on)
-            assignment[t0 + kt, ci[ei[ke]]] = cj[ej[ke]]
-            matched[t0 + kt, ci[ei[ke]]] = close[ke, kt]
-    # snap float noise from the subtract-and-add above
-    missed_t = np.where(np.abs(missed_t) < 1e-9 * half, 0.0, missed_t)
-    false_t = np.where(np.abs(false_t) < 1e-9 * half, 0.0, false_t)
-    loc, mis, fal, sw = (float(v.sum()) for v in (loc_t, missed_t, false_t, switch_t))
+            add_component(acc, Xa, Ya, ex, ey, gi[sel], gj[sel], c=c, p=p, gamma=gamma)
+    return _result(acc, half, p)
+
+
+def _tgospa_inputs(X: ArrayLike, Y: ArrayLike, *, c: float, p: float,
+                   gamma: float) -> tuple[Array, Array]:
+    """Check the parameters and shapes of :func:`trajectory_gospa`; the two arrays."""
+    _check_params(c, p)
+    if not (np.isfinite(gamma) and gamma > 0):
+        raise ParameterError(f"switching cost gamma must be a positive number, got {gamma!r}",
+                             parameter="gamma")
+    Xa = _as_traj(X, "X")
+    Ya = _as_traj(Y, "Y")
+    T = Xa.shape[1]
+    if Ya.shape[1] != T:
+        raise ParameterError(f"X and Y must share the time grid: T = {T} and {Ya.shape[1]}",
+                             parameter="Y")
+    if Ya.shape[2] != Xa.shape[2]:
+        raise ParameterError("X and Y must have the same state dimension", parameter="Y")
+    return Xa, Ya
+
+
+def _result(acc: TGospaParts, half: float, p: float) -> TGospaResult:
+    """The metric and its parts from the per-step sums."""
+    # snap float noise from the subtract-and-add of the components
+    missed_t = np.where(np.abs(acc.missed_t) < 1e-9 * half, 0.0, acc.missed_t)
+    false_t = np.where(np.abs(acc.false_t) < 1e-9 * half, 0.0, acc.false_t)
+    loc, mis, fal, sw = (float(v.sum()) for v in (acc.loc_t, missed_t, false_t,
+                                                   acc.switch_t))
     value = float(max(loc + mis + fal + sw, 0.0) ** (1.0 / p))
     return TGospaResult(
         value=value, localisation=loc, missed=mis, false=fal, switch=sw,
-        localisation_t=loc_t, missed_t=missed_t, false_t=false_t, switch_t=switch_t,
-        assignment=assignment, matched=matched, fractional=fractional,
-        n_components=n_comp, largest_lp_variables=largest, truth_span=span, lower=value,
+        localisation_t=acc.loc_t, missed_t=missed_t, false_t=false_t,
+        switch_t=acc.switch_t, assignment=acc.assignment, matched=acc.matched,
+        fractional=acc.fractional, n_components=acc.n_comp,
+        largest_lp_variables=acc.largest, truth_span=acc.span, lower=value,
     )
 
 
@@ -471,7 +370,7 @@ def grid_trajectories(
         if len(t) == 0:
             continue
         if np.any(np.diff(t) <= 0):
-            raise ValueError("trajectory times must be strictly increasing")
+            raise ParameterError("trajectory times must be strictly increasing", parameter="times")
         lo = np.searchsorted(g, t[0], side="left")
         hi = np.searchsorted(g, t[-1], side="right")
         if hi <= lo:

@@ -14,9 +14,10 @@ from collections.abc import Callable
 
 import numpy as np
 
-from .config import SensorConfig
-from .geodesy import LocalFrame
-from .simulate import Leg, Scenario, ScenarioSpec, SimSensor, VesselPlan, arpa_sigmas
+from harbourwatch.io.records import SensorConfig
+from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.sim.engine import arpa_sigmas
+from harbourwatch.sim.model import Leg, Scenario, ScenarioSpec, SimSensor, VesselPlan
 
 __all__ = ["SCENARIOS", "PORT_CALDER_ORIGIN", "port_calder_zones_geojson", "PORT_CALDER_RULES"]
 
@@ -405,6 +406,47 @@ def _watch_days(seed: int, duration_s: float | None) -> Scenario:
                     zones_geojson=port_calder_zones_geojson(), rules_toml=PORT_CALDER_RULES)
 
 
+#: Midnight UTC before the built-in scenarios' start: 2026-05-04T00:00:00Z.
+MIDNIGHT_EPOCH_S = 1777852800.0
+
+
+def _archive_days(seed: int, duration_s: float | None) -> Scenario:
+    """Days of ordinary traffic from midnight UTC, two radars: an archive for campaigns.
+
+    12 vessel slots, each a chain of vessels on random routes across the
+    two covers, 6 false plots per scan per radar; default 4 days.
+    """
+    dur = 4 * 86400.0 if duration_s is None else duration_s
+    a = _open_sea_sensor("archive-west", -4000, 0, max_range_m=15000.0)
+    b = _open_sea_sensor("archive-east", 4000, 0, scan_period_s=3.0, max_range_m=15000.0)
+    rng = np.random.default_rng([seed, 11])
+
+    def point() -> tuple[float, float]:
+        r = 11000.0 * math.sqrt(rng.random())
+        th = rng.uniform(0, 2 * math.pi)
+        return r * math.sin(th), r * math.cos(th)
+
+    vessels, count = [], 0
+    for slot in range(12):
+        t = -rng.uniform(0, 1800.0)
+        while t < dur:
+            e, n = point()
+            kn = float(rng.uniform(3, 14))
+            legs, length, pe, pn = [], 0.0, e, n
+            for _ in range(int(rng.integers(2, 5))):
+                we, wn = point()
+                legs.append(_go(we, wn, kn))
+                length += math.hypot(we - pe, wn - pn)
+                pe, pn = we, wn
+            count += 1
+            vessels.append(_plan(f"archive-{slot:02d}-{count:05d}", t, e, n,
+                                 float(rng.uniform(0, 360)), kn, legs))
+            t += length / (kn * 1852.0 / 3600.0) + 40.0 + rng.uniform(0, 600.0)
+    return Scenario(name="archive-days", start_epoch_s=MIDNIGHT_EPOCH_S, duration_s=dur,
+                    sensors=(SimSensor(config=a), SimSensor(config=b)), vessels=tuple(vessels),
+                    zones_geojson=port_calder_zones_geojson(), rules_toml=PORT_CALDER_RULES)
+
+
 SCENARIOS: dict[str, ScenarioSpec] = {
     s.name: s for s in (
         ScenarioSpec(name="demo", build=_demo, default_seed=20260504, default_duration_s=5400.0,
@@ -425,6 +467,9 @@ SCENARIOS: dict[str, ScenarioSpec] = {
         ScenarioSpec(name="arpa", build=_arpa, default_duration_s=1800.0,
                      description="one radar with the plotting-aid standard's sensor error "
                                  "model, six vessels on steady legs"),
+        ScenarioSpec(name="archive-days", build=_archive_days, default_duration_s=4 * 86400.0,
+                     description="4 days from midnight UTC, two radars, ~12 vessels at any "
+                                 "time: an archive for campaigns"),
         ScenarioSpec(name="watch-days", build=_watch_days, default_duration_s=3 * 7200.0,
                      description="three 2-hour days, two radars, vessels loitering, crossing "
                                  "and meeting across the day boundaries"),

@@ -1,6 +1,6 @@
 """Private: reading and validating the sensor TOML, zones GeoJSON and rules TOML.
 
-Public entry points are re-exported by :mod:`harbourwatch.config`. ``tomllib``
+Public entry points are re-exported by :mod:`harbourwatch.io.records`. ``tomllib``
 and ``json`` give no line numbers for values, so small scanners of the raw
 text locate the ``[[table]]`` headers, the keys inside each, and GeoJSON
 features, to point every message at a line.
@@ -11,59 +11,31 @@ from __future__ import annotations
 import math
 import re
 import tomllib
-import unicodedata
 from collections.abc import Iterable, Mapping
 from os import PathLike
 from types import MappingProxyType
 from typing import Any
 
-from .config import ParamSpec, RuleConfig, RuleSchema, SensorConfig, ZoneConfig
-from .errors import InputError
+from harbourwatch.errors import InputError
+from harbourwatch.io.records import (
+    RULE_SCHEMAS,
+    ParamSpec,
+    RuleConfig,
+    RuleSchema,
+    SensorConfig,
+    ZoneConfig,
+)
+from harbourwatch.io.text import control_character, read_text
 
-__all__ = ["load_sensors", "load_zones", "load_rules"]
+__all__ = ["load_sensors", "load_rules"]
 
 _TABLE_RE = re.compile(r"^\s*\[")
 _ARRAY_TABLE_RE = re.compile(r"^\s*\[\[\s*([^\]]+?)\s*\]\]")
 _KEY_RE = re.compile(r"""^\s*(?:"([^"]*)"|'([^']*)'|([A-Za-z0-9_-]+))\s*=""")
 
 
-# --- raw text helpers --------------------------------------------------------------------
-
-
-def control_character(text: str) -> str | None:
-    """Why ``text`` is refused for holding a control character, or ``None`` when it is fine.
-
-    Ids, names and kinds end up in terminal tables, CSV files and web pages;
-    a control character (tab, newline, escape, ...) has no place in any of
-    them and could rewrite what a terminal shows.
-
-    Examples
-    --------
-    >>> control_character("Calder Fairway")
-    >>> control_character("red\x1b[31m")
-    'control character U+001B is not allowed (at position 4)'
-    """
-    for k, ch in enumerate(text):
-        if unicodedata.category(ch) == "Cc":
-            return f"control character U+{ord(ch):04X} is not allowed (at position {k + 1})"
-    return None
-
-
-def _read_text(path: str | PathLike[str]) -> str:
-    try:
-        with open(path, "rb") as fh:
-            data = fh.read()
-    except OSError as exc:
-        raise InputError(f"cannot read the file: {exc.strerror or exc}", file=path) from None
-    try:
-        return data.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = data[: exc.start].count(b"\n") + 1
-        raise InputError("not valid UTF-8 text", file=path, line=line) from None
-
-
 def _read_toml(path: str | PathLike[str]) -> tuple[dict[str, Any], str]:
-    text = _read_text(path)
+    text = read_text(path)
     try:
         return tomllib.loads(text), text
     except tomllib.TOMLDecodeError as exc:
@@ -216,7 +188,7 @@ def load_sensors(path: str | PathLike[str]) -> tuple[SensorConfig, ...]:
     Examples
     --------
     A file holding the example of the file contract gives one
-    :class:`~harbourwatch.config.SensorConfig` with ``lat_deg=54.3012``.
+    :class:`~harbourwatch.io.records.SensorConfig` with ``lat_deg=54.3012``.
     """
     data, text = _read_toml(path)
     entries = _entries(path, data, text, "sensor")
@@ -271,16 +243,18 @@ def load_rules(
     zones
         The run's zones; a rule's ``zone`` must be one of their ids.
     schemas
-        Rule kinds by name (from the rules module's registry). When given,
-        the kind must be one of them and every other key must be one of the
-        kind's parameters, within its bounds. When ``None``, any extra key
-        with a numeric value is kept as a parameter.
+        Rule kinds by name; by default every registered kind
+        (:data:`harbourwatch.io.records.RULE_SCHEMAS`). The kind must be one
+        of them and every other key one of the kind's parameters, within its
+        bounds: the one validation of a rule, done here at the edge.
 
     Raises
     ------
     InputError
         Naming the file, line and key of the first problem.
     """
+    if schemas is None:
+        schemas = RULE_SCHEMAS
     data, text = _read_toml(path)
     zone_ids = [z.id for z in zones]
     seen: dict[str, int | None] = {}
@@ -290,18 +264,16 @@ def load_rules(
         kind = e.string("kind")
         assert rid is not None and kind is not None
         _duplicate(e, "id", rid, seen, "rule id")
-        schema = None
-        if schemas is not None:
-            if kind not in schemas:
-                raise e.error("kind", f"unknown rule kind {kind!r}; valid kinds: "
-                                      f"{', '.join(sorted(schemas))}")
-            schema = schemas[kind]
-            _unknown_keys(e, (*_RULE_COMMON, *(p.name for p in schema.params)))
+        if kind not in schemas:
+            raise e.error("kind", f"unknown rule kind {kind!r}; valid kinds: "
+                                  f"{', '.join(sorted(schemas))}")
+        schema = schemas[kind]
+        _unknown_keys(e, (*_RULE_COMMON, *(p.name for p in schema.params)))
         zone = e.string("zone", required=False)
         if zone is not None and zone not in zone_ids:
             raise e.error("zone", f"unknown zone {zone!r}; valid zone ids: "
                                   f"{', '.join(zone_ids) or 'none'}")
-        if zone is None and schema is not None and schema.zone_required:
+        if zone is None and schema.zone_required:
             raise e.error("zone", f"missing required key: rule kind {kind!r} needs a zone")
         min_p = 0.5
         if "min_probability" in e.data:
@@ -316,13 +288,8 @@ def load_rules(
     return tuple(out)
 
 
-def _rule_params(e: _Entry, schema: RuleSchema | None) -> dict[str, Any]:
+def _rule_params(e: _Entry, schema: RuleSchema) -> dict[str, Any]:
     params: dict[str, Any] = {}
-    if schema is None:
-        for key, v in e.data.items():
-            if key not in _RULE_COMMON:
-                params[key] = e.check_number(key, v, lo=-math.inf, hi=math.inf)
-        return params
     spec: ParamSpec
     for spec in schema.params:
         if spec.name not in e.data:
@@ -337,5 +304,3 @@ def _rule_params(e: _Entry, schema: RuleSchema | None) -> dict[str, Any]:
                                            hi=spec.max_value, what=what)
     return params
 
-
-from ._zonefile import load_zones  # noqa: E402  (zones need geopandas; kept apart)

@@ -4,7 +4,7 @@ Reads the two CSV files (``track,time,lat,lon`` at least), puts every
 trajectory on one time grid in the local frame, and reports
 
 * per-step GOSPA (mean over the grid) and the LP trajectory GOSPA with its
-  parts (see :mod:`harbourwatch.metrics`);
+  parts (see :mod:`harbourwatch.scoring.metrics`);
 * plain-language figures from the trajectory GOSPA assignment: position,
   speed and course errors of matched vessels, missed-vessel and false-track
   minutes, track breaks and identity swaps.
@@ -55,18 +55,18 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from ._io import atomic_write_text
-from ._scoreread import ScoreTable, group_by_track, read_score_csv
-from .errors import InputError
-from .geodesy import LocalFrame
-from .metrics import TGospaResult, gospa, grid_trajectories, trajectory_gospa
-from .tgospa_windows import trajectory_gospa_windowed
-from .timefmt import format_utc_one
+from harbourwatch.errors import InputError
+from harbourwatch.io.atomic import atomic_write_text
+from harbourwatch.io.timefmt import format_utc_one
+from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.scoring.metrics import TGospaResult, gospa, grid_trajectories, trajectory_gospa
+from harbourwatch.scoring.reading import ScoreTable, group_by_track, read_score_csv
+from harbourwatch.scoring.windows import trajectory_gospa_windowed
+from harbourwatch.units import CAUTION, KNOT_M_S
 
 __all__ = ["ScoreReport", "score_files", "write_score_plot"]
 
 Array = NDArray[np.float64]
-KN = 1852.0 / 3600.0  # metres per second in one knot (international nautical mile)
 MAX_GRID_STEPS = 2_000_000
 MIN_COURSE_SPEED_KN = 1.0
 
@@ -353,7 +353,7 @@ def score_files(
         (exact). Otherwise solved in windows of this length, which keeps long
         feeds tractable; the report then holds an upper bound (``tgospa``,
         the cost of a feasible assignment) and a lower bound
-        (``tgospa_lower``); see :mod:`harbourwatch.tgospa_windows`.
+        (``tgospa_lower``); see :mod:`harbourwatch.scoring.windows`.
 
     Raises
     ------
@@ -399,13 +399,13 @@ def _engineer_figures(
 
     # speeds and courses at matched vessel-steps
     vt = _velocity(X, grid)[ti, tt]
-    speed_true_kn = np.linalg.norm(vt, axis=1) / KN if len(ti) else np.zeros(0)
+    speed_true_kn = np.linalg.norm(vt, axis=1) / KNOT_M_S if len(ti) else np.zeros(0)
     if has_vel:
         speed_est_kn = eg[tj, tt, 2]
         course_est = np.arctan2(eg[tj, tt, 3], eg[tj, tt, 4])
     else:
         ve = _velocity(Y, grid)[tj, tt]
-        speed_est_kn = np.linalg.norm(ve, axis=1) / KN if len(ti) else np.zeros(0)
+        speed_est_kn = np.linalg.norm(ve, axis=1) / KNOT_M_S if len(ti) else np.zeros(0)
         course_est = np.arctan2(ve[:, 0], ve[:, 1]) + frame.grid_convergence_rad(
             Y[tj, tt, 0], Y[tj, tt, 1]) if len(ti) else np.zeros(0)
     course_true = (np.arctan2(vt[:, 0], vt[:, 1]) + frame.grid_convergence_rad(
@@ -535,8 +535,7 @@ def write_score_plot(report: ScoreReport, path: str | PathLike[str]) -> None:
                 "pre{font-size:13px}</style></head>"
                 f"<body><h1>Score</h1><p>{html.escape(report.tracks_path)} against "
                 f"{html.escape(report.truth_path)}</p>{svg}<pre>{html.escape(report.as_table())}</pre>"
-                "<p>Accuracy figures support, and never replace, qualified watchkeepers "
-                "and the competent authority.</p></body></html>\n")
+                f"<p>{html.escape(CAUTION)}</p></body></html>\n")
     try:
         atomic_write_text(p, text)
     except OSError as exc:

@@ -1,4 +1,4 @@
-"""Private helpers of :mod:`harbourwatch.feeds`: reading one file, checking columns.
+"""Private helpers of :mod:`harbourwatch.io.feeds`: reading one file, checking columns.
 
 The fast path casts whole pyarrow columns at once; only when a cast fails is
 the first failing row located, by bisection with the same cast, so the
@@ -21,7 +21,7 @@ import pyarrow.csv as pacsv
 import pyarrow.parquet as pq
 from numpy.typing import NDArray
 
-from .errors import InputError
+from harbourwatch.errors import InputError
 
 REQUIRED = ("time", "sensor", "lat", "lon")
 OPTIONAL = ("scan", "sigma_m")
