@@ -163,6 +163,12 @@ def test_catalogue_tables_and_geoparquet(world: dict[str, Path]) -> None:
         assert len(pd) == 6 and all(abs(p[0] - 0.9) < 0.1 for p in pd)
     finally:
         con.close()
+    page = (world["local"] / "index.html").read_text(encoding="utf-8")
+    for chunk in ("20260504T0600Z", "20260504T0800Z", "20260504T1000Z"):
+        assert f'href="chunks/{chunk}/report.html"' in page
+        assert (world["local"] / "chunks" / chunk / "report.html").is_file()
+    assert page.count("<tr><td>2026-05-04T") == 5  # the combined alerts table
+    assert "http://" not in page and "https://" not in page  # offline
 
 
 def test_find_filters_and_sql(world: dict[str, Path], capsys: pytest.CaptureFixture[str]) -> None:
