@@ -123,6 +123,17 @@ def main() -> None:
     _line("one chunk-day, one process (min / max)", f"{min(per_chunk):.1f} / {max(per_chunk):.1f} s")
     per_chunk2 = [r["seconds"] for r in two["chunks"]]
     _line("one chunk-day, two workers (min / max)", f"{min(per_chunk2):.1f} / {max(per_chunk2):.1f} s")
+    # CPU seconds do not depend on what else the machine runs: with two free cores the
+    # cluster's wall time would be its busiest worker's CPU time plus the fixed parts
+    cpu_one = sum(r["cpu_s"] for r in one["chunks"])
+    cpu_busiest = max(sum(r["cpu_s"] for r in rs) for rs in by_worker.values())
+    tm2 = two["timings"]
+    fixed2 = tm2["start_s"] + tm2["scan_s"] + tm2["combine_s"]
+    fixed1 = one["timings"]["start_s"] + one["timings"]["scan_s"] + one["timings"]["combine_s"]
+    _line("CPU of the chunk reviews: one process / busiest worker",
+          f"{cpu_one:.1f} s / {cpu_busiest:.1f} s")
+    _line("speed-up on two free cores (from CPU seconds)",
+          f"{(cpu_one + fixed1) / (cpu_busiest + fixed2):.2f}x")
     for w, rs in sorted(by_worker.items()):
         _line(f"peak memory, worker {w}", f"{max(r['peak_rss_mb'] for r in rs):.0f} MB "
               f"({len(rs)} chunks)")

@@ -193,6 +193,7 @@ def run_chunk(task: ChunkTask) -> dict[str, Any]:
     from harbourwatch.pipeline import run_review
 
     started = time.perf_counter()
+    cpu0 = time.process_time()
     final = task.folder
     parent = final.parent
     parent.mkdir(parents=True, exist_ok=True)
@@ -224,6 +225,7 @@ def run_chunk(task: ChunkTask) -> dict[str, Any]:
             "plots": summary.plots_total, "scans": summary.scans,
             "health": kept["health"],
             "seconds": time.perf_counter() - started,
+            "cpu_s": time.process_time() - cpu0,
             "peak_rss_mb": peak_rss_mb(),
         }
         atomic_write_text(tmp / CHUNK_FILE, json.dumps(result, indent=1, sort_keys=True) + "\n")
