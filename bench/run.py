@@ -12,6 +12,8 @@ Campaign: a 4-day two-radar archive on two workers against one process
 
 Set ``BENCH_HOURS`` to shorten the throughput feed (default 6) and
 ``BENCH_RUNS`` for the number of timed runs (default 2; the slowest counts).
+Last, the input-contract fuzzing harness (``tests/fuzz_contract.py``) on
+``BENCH_FUZZ_EXAMPLES`` random cases (default 500).
 """
 
 from __future__ import annotations
@@ -104,6 +106,21 @@ def _load_time(path: Path) -> float | None:
     return page_load_seconds(path)
 
 
+def fuzz() -> None:
+    """The input-contract fuzzing harness on more random cases than ``make test`` runs."""
+    n = int(os.environ.get("BENCH_FUZZ_EXAMPLES", "500"))
+    harness = Path(__file__).resolve().parent.parent / "tests" / "fuzz_contract.py"
+    print(f"== fuzzing the input contract: {n} random generated cases, 3 GiB address-space cap")
+    t = time.perf_counter()
+    proc = subprocess.run([sys.executable, str(harness), "--examples", str(n), "--random"],
+                          cwd=harness.parent, capture_output=True, text=True)
+    if proc.returncode != 0:
+        print(proc.stdout[-3000:], proc.stderr[-3000:])
+        raise SystemExit("the fuzzing harness found a breach of the input contract")
+    _line("result", proc.stdout.strip().splitlines()[-1])
+    _line("time", f"{time.perf_counter() - t:.0f} s")
+
+
 def main() -> None:
     OUT.mkdir(parents=True, exist_ok=True)
     from bench import accuracy, bench_score, campaign
@@ -112,6 +129,7 @@ def main() -> None:
     bench_score.main()
     throughput()
     campaign.main()
+    fuzz()
 
 
 if __name__ == "__main__":

@@ -21,7 +21,13 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-from harbourwatch.errors import ComputationError, HarbourwatchError, InputError, ParameterError
+from harbourwatch.errors import (
+    ComputationError,
+    HarbourwatchError,
+    InputError,
+    OutputError,
+    ParameterError,
+)
 from harbourwatch.filter import FilterOutput, run_filter, warm_up
 from harbourwatch.io import (
     FilterSettings,
@@ -46,6 +52,7 @@ __all__ = [
     "InputError",
     "ParameterError",
     "ComputationError",
+    "OutputError",
     # verbs
     "load_inputs",
     "into_local_frame",

@@ -4,14 +4,15 @@
 line and exits with status 2 for :class:`InputError` (bad input) and
 :class:`ParameterError` (a library argument out of range, named so the
 command line can point at its flag), and 1 for anything else
-(:class:`ComputationError`).
+(:class:`ComputationError`, :class:`OutputError`).
 """
 
 from __future__ import annotations
 
 from os import PathLike
 
-__all__ = ["HarbourwatchError", "InputError", "ParameterError", "ComputationError"]
+__all__ = ["HarbourwatchError", "InputError", "ParameterError", "ComputationError",
+           "OutputError"]
 
 
 class HarbourwatchError(Exception):
@@ -83,3 +84,21 @@ class ParameterError(HarbourwatchError, ValueError):
 
 class ComputationError(HarbourwatchError, RuntimeError):
     """A numerical step failed on valid input (a solver that did not converge)."""
+
+
+class OutputError(HarbourwatchError, OSError):
+    """An output could not be written (a full disk, a folder gone read-only).
+
+    The message says why and which file: ``"no space left on /data while
+    writing /data/out/as_seen.csv"``. It is also an :class:`OSError`.
+
+    Examples
+    --------
+    >>> str(OutputError("no space left on /data", path="/data/out/as_seen.csv"))
+    'no space left on /data while writing /data/out/as_seen.csv'
+    """
+
+    def __init__(self, reason: str, *, path: str | PathLike[str]) -> None:
+        self.reason = reason
+        self.path = str(path)
+        super().__init__(f"{reason} while writing {self.path}")

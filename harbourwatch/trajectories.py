@@ -27,6 +27,7 @@ __all__ = [
     "tracks_csv_text",
     "as_seen_csv_text",
     "trajectories_geojson",
+    "cut_at_antimeridian",
     "TRACK_COLUMNS",
     "AS_SEEN_COLUMNS",
 ]
@@ -124,7 +125,8 @@ class AsSeenTable:
 
     One row per (scan, trajectory): the filtered state of each Bernoulli of
     the best global hypothesis whose existence is above the threshold and
-    whose most likely end is the current scan. Never used by the rules.
+    whose most likely end is the current scan; rows sorted by (time, track).
+    Never used by the rules.
     """
 
     time: Array  # (N,) scan reference time, epoch s
@@ -252,8 +254,49 @@ def as_seen_csv_text(tset: TrajectorySet) -> str:
     return _csv_text(AS_SEEN_COLUMNS, columns, [None, None, 7, 7, 2, 1, 1, 4])
 
 
+def cut_at_antimeridian(lon: list[float], lat: list[float]) -> list[list[list[float]]]:
+    """A line of ``lon, lat`` vertices (degrees) cut into parts where it crosses ±180°.
+
+    RFC 7946, section 3.1.9: a geometry that crosses the antimeridian SHOULD be
+    cut in two so that neither part's representation crosses it. A segment
+    crosses when its ends are more than 180° of longitude apart (the short
+    way round goes over ±180°). The cut point lies on the segment's straight
+    line in longitude and latitude (RFC 7946, section 3.1.1) with the second
+    end's longitude unwrapped by 360°; the part before the cut ends at its
+    side's ±180°, the part after starts at the other. A line that does not
+    cross comes back whole as one part; parts with fewer than two positions
+    (a line starting or ending exactly on ±180°) are dropped.
+
+    Examples
+    --------
+    The example of RFC 7946, section 3.1.9:
+
+    >>> cut_at_antimeridian([170.0, -170.0], [45.0, 45.0])
+    [[[170.0, 45.0], [180.0, 45.0]], [[-180.0, 45.0], [-170.0, 45.0]]]
+    """
+    parts: list[list[list[float]]] = [[[lon[0], lat[0]]]] if lon else []
+    for k in range(1, len(lon)):
+        x0, y0, x1, y1 = lon[k - 1], lat[k - 1], lon[k], lat[k]
+        if abs(x1 - x0) > 180.0:
+            edge = 180.0 if x0 > 0 else -180.0  # the side the line leaves from
+            x1u = x1 + 360.0 if x0 > 0 else x1 - 360.0
+            f = (edge - x0) / (x1u - x0) if x1u != x0 else 0.0
+            yc = round(y0 + f * (y1 - y0), 7) + 0.0
+            if parts[-1][-1] != [edge, yc]:
+                parts[-1].append([edge, yc])
+            parts.append([[-edge, yc]])
+            if parts[-1][-1] == [x1, y1]:
+                continue
+        parts[-1].append([x1, y1])
+    return [q for q in parts if len(q) > 1]
+
+
 def trajectories_geojson(tset: TrajectorySet) -> dict[str, Any]:
-    """All trajectories as an RFC 7946 FeatureCollection of LineStrings (WGS84)."""
+    """All trajectories as an RFC 7946 FeatureCollection of LineStrings (WGS84).
+
+    A trajectory that crosses the antimeridian is a MultiLineString cut there
+    (:func:`cut_at_antimeridian`, RFC 7946 section 3.1.9).
+    """
     from harbourwatch.io.timefmt import format_utc_one
 
     features = []
@@ -262,11 +305,14 @@ def trajectories_geojson(tset: TrajectorySet) -> dict[str, Any]:
         # rounded as in tracks.csv (numpy's rounding), 7 decimals of a degree ~ 1 cm
         lon7, lat7 = np.round(lon, 7) + 0.0, np.round(lat, 7) + 0.0
         coords = [[x, y] for x, y in zip(lon7.tolist(), lat7.tolist(), strict=True)]
-        geom = (
-            {"type": "LineString", "coordinates": coords}
-            if len(coords) > 1
-            else {"type": "Point", "coordinates": coords[0]}
-        )
+        parts = cut_at_antimeridian(lon7.tolist(), lat7.tolist()) if len(coords) > 1 else []
+        geom: dict[str, Any]
+        if len(parts) > 1:
+            geom = {"type": "MultiLineString", "coordinates": parts}
+        elif len(coords) > 1:
+            geom = {"type": "LineString", "coordinates": parts[0] if parts else coords}
+        else:
+            geom = {"type": "Point", "coordinates": coords[0]}
         features.append(
             {
                 "type": "Feature",

@@ -211,3 +211,31 @@ BAD_FEEDS = [
     ("duplicate-column", CALDER_FEED.replace("sigma_m", "lat", 1), 1, "lat", "more than once"),
     ("header-only-wrong", "time,sensor,latitude,lon\n", 1, "lat", "found: 'time'"),
 ]
+
+
+@pytest.fixture(scope="session")
+def demo_run(tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-untyped-def]
+    """The bundled Port Calder demo reviewed once per test session (no screenshots): its folder.
+
+    With a display time zone, the widest times the pages write.
+    """
+    from harbourwatch.pipeline import demo_paths, run_review
+
+    paths = demo_paths()
+    out = tmp_path_factory.mktemp("demo-run")
+    run_review([paths["feed"]], sensors=paths["sensors"], zones=paths["zones"],
+               rules=paths["rules"], out=out, progress=False, display_tz="Europe/Oslo")
+    return out
+
+
+@pytest.fixture(scope="module")
+def browser():  # type: ignore[no-untyped-def]
+    """Headless Chromium (Debian's), one per test module; the browser tests skip without it."""
+    from playwright import sync_api
+
+    from harbourwatch.report.screenshot import CHROMIUM, CHROMIUM_ARGS
+
+    with sync_api.sync_playwright() as pw:
+        b = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        yield b
+        b.close()

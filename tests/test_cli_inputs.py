@@ -94,7 +94,7 @@ CASES: dict[str, Case] = {
        for cid, text, line, field, words in BAD_FEEDS},
     "feed-zero-bytes": _feed(b"", 1, None, "no header"),
     "feed-bad-utf8": _feed(b"time,sensor,lat,lon\n2026-05-04T06:00:00Z,caf\xe9,54.3,10.1\n",
-                           2, None, "UTF-8"),
+                           2, "sensor", "UTF-8"),
     "feed-missing": _missing("feed"),
     "feed-gzip-bad-lat": _gz_feed,
     "feed-parquet-unknown-sensor": _parquet_feed,
@@ -138,7 +138,7 @@ CASES: dict[str, Case] = {
     "zones-number-id": _zones(lambda d: d["features"][2]["properties"].update(id=5),
                               "properties.id", "string", '"type": "Feature"', nth=3),
     "zones-duplicate-id": _zones(lambda d: d["features"][2]["properties"].update(
-        id="firing-range"), "properties.id", "duplicate", '"id": "firing-range"'),
+        id="firing-range"), "properties.id", "duplicate", '"id": "firing-range"', nth=2),
     "zones-name-type": _zones(lambda d: d["features"][0]["properties"].update(name=1),
                               "properties.name", "string", '"id": "inner-basin"'),
     "zones-self-intersection": _zones(lambda d: d["features"][2]["geometry"].update(

@@ -57,7 +57,8 @@ SENSOR_BAD_VALUES = [
     # (key, bad TOML value, words the message must hold)
     ("lat", "91.0", "from -90 to 90"),
     ("lat", "-90.5", "from -90 to 90"),
-    ("lat", '"54.3"', "found '54.3'"),
+    ("lat", '"54.3"', "found '54.3' (text, not a number: remove the quotes)"),
+    ("max_range_m", '"22000"', "remove the quotes"),
     ("lon", "180.01", "from -180 to 180"),
     ("scan_period_s", "0", "positive"),
     ("scan_period_s", "true", "found true"),
@@ -72,6 +73,9 @@ SENSOR_BAD_VALUES = [
     ("id", "7", "non-empty string"),
     ("id", '""', "non-empty string"),
     ("id", '"mole\\u001b[2Jhead"', "control character U+001B"),  # would clear a terminal
+    # bidirectional controls (Unicode Standard Annex #9, table 4 and section 2.6)
+    ("id", '"mole\\u202Edaeh"', "bidirectional control character U+202E"),
+    ("id", '"mole\\u2066head"', "bidirectional control character U+2066"),
 ]
 
 
@@ -230,6 +234,21 @@ def test_zone_id_with_a_control_character_is_refused(calder):
     assert err.field == "properties.id" and "U+0007" in err.message and err.line is not None
 
 
+@pytest.mark.parametrize("code", [*range(0x202A, 0x202F), *range(0x2066, 0x206A),
+                                  0x200E, 0x200F, 0x061C])
+@pytest.mark.parametrize("prop", ["id", "name"])
+def test_zone_id_or_name_with_a_bidirectional_control_is_refused(calder, code, prop):
+    # the explicit formatting characters and the implicit marks of Unicode Standard
+    # Annex #9 (table 4, section 2.6): an override would reverse the rest of a narrative
+    doc = _doc()
+    doc["features"][1]["properties"][prop] = f"inner{chr(code)}basin"
+    _write_zones(calder, doc)
+    err = _raises(load_zones, calder.zones)
+    assert err.field == f"properties.{prop}" and f"U+{code:04X}" in err.message
+    assert "bidirectional control character" in err.message
+    assert err.file == str(calder.zones) and err.line is not None
+
+
 def test_zone_missing_and_duplicate_id(calder):
     doc = _doc()
     del doc["features"][1]["properties"]["id"]
@@ -242,7 +261,10 @@ def test_zone_missing_and_duplicate_id(calder):
     text = _write_zones(calder, doc)
     err = _raises(load_zones, calder.zones)
     assert err.field == "properties.id" and "duplicate" in err.message
-    assert err.line == line_of(text, '"id": "inner-basin"')  # best effort: first occurrence
+    # the duplicate's own line, and the first one's in the message
+    assert err.line == line_of(text, '"id": "inner-basin"', nth=2)
+    first = line_of(text, '"id": "inner-basin"')
+    assert err.line != first and f"first at line {first}" in err.message
 
 
 def test_zone_missing_file(tmp_path):
@@ -291,12 +313,17 @@ RULE_CASES = [
     ("max_distance_m = 150", "max_distance_m = 0.5", "max_distance_m", "at least 1", True),
     ("max_speed_kn = 1.5", "max_speed_kn = true", "max_speed_kn", "found true", False),
     ("max_speed_kn = 1.5", 'max_speed_kn = "fast"', "max_speed_kn", "found 'fast'", False),
+    ("max_speed_kn = 1.5", 'max_speed_kn = "1.5"', "max_speed_kn", "remove the quotes", False),
     ('zone = "inner-basin"', 'zone = "inner-basn"', "zone",
      "valid zone ids: inner-basin, firing-range, outer-roads", False),
     ('id = "range-crossing"', 'id = "basin-loiter"', "id", "duplicate", False),
     ('id = "range-crossing"\n', "", "id", "missing", False),
     ('kind = "pass-through"', "kind = 3", "kind", "non-empty string", False),
     ('id = "range-crossing"', 'id = "range\\rcrossing"', "id", "control character U+000D", False),
+    ('id = "range-crossing"', 'id = "range\\u202Egnissorc"', "id",
+     "bidirectional control character U+202E", False),
+    ('id = "range-crossing"', 'id = "range\\u200Fcrossing"', "id",
+     "bidirectional control character U+200F", False),
     ("min_probability = 0.7", "min_probability = 1.5", "min_probability", "from 0 to 1", False),
     ("min_probability = 0.7", "min_probability = false", "min_probability", "found false", False),
 ]

@@ -152,12 +152,30 @@ def test_merge_sort_and_dedup(tmp_path):
     assert plots.duplicates_dropped == 2 and len(plots) == 6
     assert plots.files == (str(a), str(b))
     assert np.all(np.diff(plots.time) >= 0)
-    # Ties in time: file order first, then line.
+    # Ties in time: sensor (calder-head before sound-light) first, here also the file order.
     np.testing.assert_array_equal(plots.source, [1, 0, 1, 0, 0, 0])
     np.testing.assert_array_equal(plots.line, [4, 2, 3, 3, 4, 5])
     # A different sigma_m makes a different row, not a duplicate.
     c = _write(tmp_path, CALDER_FEED.replace(",25\n", ",26\n"), "c.csv")
     assert read_feeds([a, c], SENSORS).duplicates_dropped == 3
+
+
+def test_plots_sharing_a_time_come_out_in_one_order_whatever_the_rows_order(tmp_path):
+    # a radar stamping a whole revolution with one time: only the values tell the plots apart
+    rows = ["2026-05-04T06:00:00.000Z,calder-head,54.3100,10.1500,",
+            "2026-05-04T06:00:00.000Z,calder-head,54.3050,10.1600,",
+            "2026-05-04T06:00:00.000Z,calder-head,54.3050,10.1400,",
+            "2026-05-04T06:00:00.000Z,sound-light,54.3000,10.1000,"]
+    head = "time,sensor,lat,lon,sigma_m\n"
+    a = _write(tmp_path, head + "\n".join(rows) + "\n", "a.csv")
+    b = _write(tmp_path, head + "\n".join(rows[::-1]) + "\n", "b.csv")
+    c1 = _write(tmp_path, head + "\n".join(rows[2:]) + "\n", "c1.csv")
+    c2 = _write(tmp_path, head + "\n".join(rows[:2]) + "\n", "c2.csv")
+    tables = [read_feeds([a], SENSORS), read_feeds([b], SENSORS), read_feeds([c1, c2], SENSORS)]
+    for t in tables:
+        np.testing.assert_array_equal(t.sensor, [0, 0, 0, 1])
+        np.testing.assert_array_equal(t.lat_deg, [54.305, 54.305, 54.31, 54.30])
+        np.testing.assert_array_equal(t.lon_deg, [10.14, 10.16, 10.15, 10.10])
 
 
 def test_no_files_is_an_empty_table():
@@ -284,13 +302,15 @@ def test_valid_rows_round_trip_in_both_time_forms(tmp_path, rows):
     a = read_feeds([_write(tmp_path, iso, "iso.csv")], SENSORS)
     b = read_feeds([_write(tmp_path, epoch, "epoch.csv")], SENSORS)
     _same(a, b)
-    # Against the rows themselves: first of each exact duplicate kept, stable sort by time.
+    # Against the rows themselves: first of each exact duplicate kept, sorted by time, then
+    # by sensor, lat, lon and sigma_m (a missing sigma_m last).
     seen, expected = set(), []
     for r in rows:
         if r not in seen:
             seen.add(r)
             expected.append(r)
-    expected.sort(key=lambda r: r[0])
+    names = ["calder-head", "sound-light"]
+    expected.sort(key=lambda r: (r[0], names.index(r[1]), r[2], r[3], r[4] is None, r[4] or 0.0))
     assert a.duplicates_dropped == len(rows) - len(expected)
     np.testing.assert_array_equal(np.round(a.time * 1000).astype(np.int64),
                                   [r[0] for r in expected])

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import io
 import json
 import subprocess
 import sys
@@ -49,7 +50,7 @@ def test_outputs_follow_the_contract(run_dir: Path) -> None:
     assert rows and tuple(rows[0]) == TRACK_COLUMNS
     assert all(r["time"].endswith("Z") for r in rows)
     with open(run_dir / "alerts.csv", newline="") as fh:
-        assert next(csv.reader(fh)) == ALERT_COLUMNS
+        assert next(csv.reader(fh))[:len(ALERT_COLUMNS)] == ALERT_COLUMNS  # then optional columns
     run = json.loads((run_dir / "run.json").read_text())
     assert {"software", "inputs", "parameters", "timings"} <= set(run)
     assert len(run["inputs"]["feeds"][0]["sha256"]) == 64
@@ -114,3 +115,77 @@ def test_python_dash_m_entry_point(tmp_path: Path) -> None:
     proc = subprocess.run([sys.executable, "-m", "harbourwatch", "simulate", "--list"],
                           capture_output=True, text=True, check=False)
     assert proc.returncode == 0 and "demo" in proc.stdout
+
+
+def test_outputs_do_not_depend_on_the_order_or_split_of_the_feed_rows(
+        scenario, tmp_path: Path) -> None:
+    # A radar that stamps every plot of a revolution with one time (the scan's first):
+    # many plots share a time, so only the order of the rows tells them apart. The same
+    # plots shuffled, and shuffled and split over two files, give byte-identical tables
+    # (as_seen.csv rows by time, then track).
+    import random
+
+    lines = scenario["feed"].read_text().splitlines(keepends=True)
+    header, rows = lines[0], lines[1:]
+    assert header.strip() == "time,sensor,lat,lon,scan"
+    first: dict[str, str] = {}
+    stamped = []
+    for row in rows:
+        t, rest = row.split(",", 1)
+        scan = row.rstrip("\n").rsplit(",", 1)[1]
+        stamped.append(first.setdefault(scan, t) + "," + rest)
+    feeds = {"as-is": [header + "".join(stamped)]}
+    random.Random(15).shuffle(stamped)
+    half = len(stamped) // 2
+    feeds["shuffled"] = [header + "".join(stamped)]
+    feeds["split"] = [header + "".join(stamped[half:]), header + "".join(stamped[:half])]
+    args = ["--sensors", str(scenario["sensors"]), "--zones", str(scenario["zones"]),
+            "--rules", str(scenario["rules"]), "--quiet"]
+    outputs = {}
+    for name, texts in feeds.items():
+        paths = []
+        for k, text in enumerate(texts):
+            paths.append(tmp_path / f"{name}-{k}.csv")
+            paths[-1].write_text(text)
+        assert main(["run", *map(str, paths), "--out", str(tmp_path / name), *args]) == 0
+        outputs[name] = {f: (tmp_path / name / f).read_bytes() for f in
+                         ("tracks.csv", "as_seen.csv", "alerts.csv", "trajectories.geojson")}
+    assert outputs["shuffled"] == outputs["as-is"]
+    assert outputs["split"] == outputs["as-is"]
+    with open(tmp_path / "as-is" / "as_seen.csv", newline="") as fh:
+        keys = [(r["time"], r["track"]) for r in csv.DictReader(fh)]
+    assert keys == sorted(keys) and len(keys) > 100
+    assert len(set(keys)) < len(keys) or len({k[0] for k in keys}) < len(keys)  # times shared
+
+
+class _Terminal(io.StringIO):
+    """Standard error as a terminal would be (for the progress bars)."""
+
+    def isatty(self) -> bool:
+        return True
+
+
+def test_progress_covers_every_stage_with_rate_and_time_left(scenario, tmp_path, monkeypatch,
+                                                              capsys) -> None:
+    import re
+
+    term = _Terminal()
+    monkeypatch.setattr(sys, "stderr", term)
+    args = ["run", str(scenario["feed"]), "--sensors", str(scenario["sensors"]),
+            "--zones", str(scenario["zones"]), "--rules", str(scenario["rules"])]
+    assert main([*args, "--out", str(tmp_path / "a")]) == 0
+    shown = term.getvalue()
+    for stage, unit in (("tracking", "scan"), ("tables", "row"), ("rules", "rule"),
+                        ("reports", "page")):
+        # tqdm's line: "stage : 100%|####| n/n [elapsed<left, rate unit/s]"
+        line = re.search(rf"{stage}\s*: 100%\|[^|]*\| *[\d.]+k?/[\d.]+k? "
+                         rf"\[\d\d:\d\d<\d\d:\d\d, *[\d.]+k?{unit}/s\]", shown)
+        assert line is not None, (stage, shown[-600:])
+    # quiet with --quiet, and when standard error is not a terminal
+    term.seek(0)
+    term.truncate()
+    assert main([*args, "--out", str(tmp_path / "b"), "--quiet"]) == 0
+    assert term.getvalue() == ""
+    monkeypatch.setattr(sys, "stderr", io.StringIO())
+    assert main([*args, "--out", str(tmp_path / "c")]) == 0
+    assert sys.stderr.getvalue() == ""

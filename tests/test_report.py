@@ -246,7 +246,7 @@ def test_alerts_table_links_each_alert_to_its_page(written: tuple[Path, list[Pat
         links = set(re.findall(r'href="([^"]+)"', row))
         assert links == {f"incidents/alert-{i + 1:04d}.html"}
         assert (out / next(iter(links))).is_file()
-        assert f"<td>{alert.rule}</td>" in row
+        assert f"<td><bdi>{alert.rule}</bdi></td>" in row  # isolated (see _html.esc_user)
 
 
 # --- determinism ------------------------------------------------------------------------
@@ -266,7 +266,7 @@ def test_same_inputs_give_identical_bytes(tmp_path: Path, written: tuple[Path, l
 def test_every_page_has_caution_first_and_print_rules(written: tuple[Path, list[Path]]) -> None:
     for p in written[1]:
         text = p.read_text("utf-8")
-        body = text.split("<body>", 1)[1]
+        body = re.split(r"<body[^>]*>", text, maxsplit=1)[1]
         assert body.lstrip().startswith('<p class="hw-caution"')
         assert CAUTION in body
         assert "@page { size: A4" in text
@@ -407,3 +407,58 @@ def test_screenshots_skipped_without_browser(monkeypatch: pytest.MonkeyPatch,
     monkeypatch.setattr(screenshot, "CHROMIUM", "/nonexistent/chromium")
     assert screenshot.take_screenshots(written[0]) == []
     assert not (written[0] / "screenshots").exists()
+
+
+# --- bidirectional text -----------------------------------------------------------------
+
+RTL_ZONE = "\u05de\u05e2\u05d2\u05df \u05d7\u05d9\u05e6\u05d5\u05e0\u05d9"  # an invented Hebrew name
+RTL_RULE = "\u05e9\u05d4\u05d9\u05d9\u05d4-7"  # an invented rule id: Hebrew letters, a digit
+
+
+class _OutsideBdi(HTMLParser):
+    """Visible text that is *not* inside a ``<bdi>`` element (scripts, SVG and title aside)."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.outside: list[str] = []
+        self.inside: list[str] = []
+        self._bdi = 0
+        self._skip = 0
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        self._bdi += tag == "bdi"
+        self._skip += tag in ("script", "svg", "title", "style")
+
+    def handle_endtag(self, tag: str) -> None:
+        self._bdi -= tag == "bdi"
+        self._skip -= tag in ("script", "svg", "title", "style")
+
+    def handle_data(self, data: str) -> None:
+        if not self._skip:
+            (self.inside if self._bdi else self.outside).append(data)
+
+
+def test_user_strings_are_isolated_from_the_sentence_around_them(tmp_path: Path) -> None:
+    # Unicode Standard Annex #9 (the bidirectional algorithm), section 2.7 "Markup and
+    # formatting characters": the HTML <bdi> element isolates its content, so a
+    # right-to-left zone name cannot reorder the times and probability beside it.
+    from dataclasses import replace
+
+    inputs = make_inputs(rule_id=RTL_RULE)
+    zones = [replace(z, name=RTL_ZONE) if z.id == "outer-roads" else z for z in inputs.zones]
+    alerts = [replace(a, summary=a.summary.replace("Outer Roads", RTL_ZONE))
+              for a in inputs.alerts]
+    inputs = replace(inputs, zones=zones, alerts=alerts)
+    pages = write_reports(tmp_path, inputs)
+    seen_inside = 0
+    for path in (pages[0], pages[1]):  # the overview and the loiter alert's incident page
+        doc = _OutsideBdi()
+        doc.feed(path.read_text("utf-8"))
+        outside, inside = "".join(doc.outside), "".join(doc.inside)
+        assert RTL_ZONE not in outside and RTL_RULE not in outside, path.name
+        seen_inside += inside.count(RTL_ZONE) + inside.count(RTL_RULE)
+        assert RTL_RULE in inside, path.name
+    incident = pages[1].read_text("utf-8")
+    narr = re.search(r'<p class="hw-narrative" id="hw-narrative">(.*?)</p>', incident, re.S)
+    assert narr is not None and f"<bdi>{RTL_ZONE}</bdi>" in narr.group(1)
+    assert seen_inside >= 4

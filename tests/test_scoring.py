@@ -10,6 +10,7 @@ from __future__ import annotations
 import csv
 import json
 import math
+import re
 from pathlib import Path
 
 import numpy as np
@@ -20,7 +21,8 @@ from pyproj import Geod
 
 from harbourwatch.cli import main
 from harbourwatch.errors import InputError
-from harbourwatch.scoring.score import mean_gospa_files, score_files, write_score_plot
+from harbourwatch.scoring.plot import write_score_plot
+from harbourwatch.scoring.score import mean_gospa_files, score_files
 
 GEOD = Geod(ellps="WGS84")
 KN = 1852.0 / 3600.0   # international knot in m/s (1 nmi = 1852 m exactly, by definition)
@@ -322,11 +324,59 @@ def test_cli_bad_truth_exits_2_naming_file_line_field(pilot, tmp_path, capsys, h
 
 @pytest.mark.parametrize("opt", [["--cutoff-m", "0"], ["--order", "0.5"],
                                  ["--switch-cost-m", "-1"], ["--grid-s", "-10"],
-                                 ["--max-gap-s", "0"], ["--tgospa-window-min", "-5"]])
+                                 ["--max-gap-s", "0"], ["--tgospa-window-min", "-5"],
+                                 ["--order", "1000"], ["--order", "inf"],
+                                 ["--order", "20", "--cutoff-m", "1e6"]])
 def test_cli_bad_options_exit_2(pilot, capsys, opt) -> None:
+    # --order 1000 used to end in an OverflowError traceback (200 ** 1000 is no float)
     tracks, truth, _ = pilot
     assert main(["score", str(tracks), str(truth), *opt]) == 2
-    assert opt[0] in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert f"field '{opt[0]}'" in err and err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_cli_a_score_too_large_to_solve_is_refused_with_the_time_it_would_take(tmp_path, capsys):
+    # A crowded anchorage: 210 vessels and 210 tracks over 200 s at 1 s. At --grid-s 0 every
+    # time stamp is a grid step, and 200 x 210 x 210 = 8.8 million cells is past the cap
+    # (the demo at --grid-s 0 has 61,322 steps, 27 vessels and 28 tracks: 46 million).
+    t = T0 + np.arange(200.0)
+    lines_x, lines_y = ["track,time,lat,lon"], ["track,time,lat,lon"]
+    stamps = [iso(a) for a in t]
+    for k in range(210):
+        lat = 57.45 + 0.0005 * (k // 15)
+        lon = -30.05 + 0.001 * (k % 15)
+        lines_x += [f"v{k},{s},{lat:.7f},{lon:.7f}" for s in stamps]
+        lines_y += [f"T{k},{s},{lat + 1e-5:.7f},{lon:.7f}" for s in stamps]
+    truth, tracks = tmp_path / "truth.csv", tmp_path / "tracks.csv"
+    truth.write_text("\n".join(lines_x) + "\n")
+    tracks.write_text("\n".join(lines_y) + "\n")
+    assert main(["score", str(tracks), str(truth), "--grid-s", "0"]) == 2
+    err = capsys.readouterr().err
+    assert "field '--grid-s'" in err and "200 grid steps at the time stamps" in err
+    assert "9 million cells" in err and "210 truth vessels and 210 tracks" in err
+    assert re.search(r"would take roughly \d+ min", err) and "--tgospa-window-min" in err
+    assert err.count("\n") == 1
+
+
+def test_cli_tells_a_long_score_before_it_starts(pilot, capsys, monkeypatch) -> None:
+    import harbourwatch.scoring.score as score_mod
+
+    tracks, truth, n = pilot
+    monkeypatch.setattr(score_mod, "NOTICE_SECONDS", 0.0)  # everything counts as long here
+    assert main(["score", str(tracks), str(truth), "--json"]) == 0
+    out, err = capsys.readouterr()
+    assert json.loads(out)["grid_steps"] == n
+    assert err.startswith(f"harbourwatch: note: scoring {n} grid steps every 10 s ")
+    assert "expect roughly" in err and err.count("\n") == 1
+
+
+def test_estimate_follows_the_measured_law() -> None:
+    # the law of MAX_LP_CELLS's measurements: 0.5 s + (cells / 1e6)^2 s per window
+    from harbourwatch.scoring.score import estimate_tgospa_seconds
+
+    assert estimate_tgospa_seconds([2e6]) == pytest.approx(4.5)
+    assert estimate_tgospa_seconds([1e6] * 4) == pytest.approx(6.0)
+    assert estimate_tgospa_seconds([4e6]) > 3 * estimate_tgospa_seconds([2e6])
 
 
 def test_cli_missing_file_and_empty_files(tmp_path, pilot, capsys) -> None:

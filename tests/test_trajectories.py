@@ -8,6 +8,8 @@ import json
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from harbourwatch.scene.geodesy import WGS84_GEOD, LocalFrame
 from harbourwatch.trajectories import (
@@ -16,6 +18,7 @@ from harbourwatch.trajectories import (
     Trajectory,
     TrajectorySet,
     as_seen_csv_text,
+    cut_at_antimeridian,
     tracks_csv_text,
     trajectories_geojson,
 )
@@ -98,3 +101,69 @@ def test_sample_shape_and_moments(tset, rng):
     assert s.shape == (400, t.time.size, 4)
     # filt == smoothed here with no dynamics coupling checked: mean within 4 sd/sqrt(n)
     assert np.all(np.abs(s[:, -1, 0].mean() - t.mean[-1, 0]) < 4 * 10 / np.sqrt(400))
+
+
+# --- antimeridian (RFC 7946, section 3.1.9) ----------------------------------------------
+
+
+def test_cut_at_antimeridian_gives_the_rfc_example():
+    # RFC 7946, section 3.1.9: the LineString from (170, 45) to (-170, 45) is represented as
+    # the MultiLineString [[[170, 45], [180, 45]], [[-180, 45], [-170, 45]]]
+    assert cut_at_antimeridian([170.0, -170.0], [45.0, 45.0]) == [
+        [[170.0, 45.0], [180.0, 45.0]], [[-180.0, 45.0], [-170.0, 45.0]]]
+    # and the other way round, westward
+    assert cut_at_antimeridian([-170.0, 170.0], [40.0, 50.0]) == [
+        [[-170.0, 40.0], [-180.0, 45.0]], [[180.0, 45.0], [170.0, 50.0]]]
+
+
+def _unwrapped_cut_lat(x0: float, y0: float, x1: float, y1: float) -> float:
+    # RFC 7946, section 3.1.1: a segment is the straight line in (lon, lat); the short way
+    # round across ±180 is the one with the longitude difference below 180 degrees
+    dx = (x1 - x0 + 180.0) % 360.0 - 180.0
+    edge = 180.0 if dx > 0 else -180.0
+    return y0 + (edge - x0) / dx * (y1 - y0)
+
+
+def test_a_track_crossing_the_antimeridian_is_cut_there():
+    frame = LocalFrame(-16.5, 180.0)  # a harbour on the antimeridian (invented)
+    trajs = (straight("T1", (-900.0, 500.0), 80.0, 12.0, n=120),   # eastward across it
+             straight("T2", (700.0, -900.0), 265.0, 9.0, n=120),   # westward across it
+             straight("T3", (-9000.0, 0.0), 0.0, 8.0, n=60))        # stays west of it
+    ts = TrajectorySet(trajectories=trajs, frame=frame, as_seen=AsSeenTable.empty(),
+                       feed_start=T0, feed_end=T0 + 300)
+    rows = list(csv.DictReader(io.StringIO(tracks_csv_text(ts))))
+    feats = {f["id"]: f["geometry"] for f in trajectories_geojson(ts)["features"]}
+    assert feats["T3"]["type"] == "LineString"
+    for tid in ("T1", "T2"):
+        geom = feats[tid]
+        assert geom["type"] == "MultiLineString" and len(geom["coordinates"]) == 2
+        first, second = geom["coordinates"]
+        for part in geom["coordinates"]:
+            lon = np.array([p[0] for p in part])
+            assert np.all(np.abs(np.diff(lon)) <= 180.0) and np.all(np.abs(lon) <= 180.0)
+        # the first part ends on its side of ±180, the second starts on the other, same lat
+        assert abs(first[-1][0]) == 180.0 and second[0][0] == -first[-1][0]
+        assert first[-1][1] == second[0][1]
+        # every vertex of tracks.csv is kept, in order, and only the two cut points added
+        mine = [[float(r["lon"]), float(r["lat"])] for r in rows if r["track"] == tid]
+        assert first[:-1] + second[1:] == mine
+        x0, y0 = first[-2]
+        x1, y1 = second[1]
+        assert first[-1][1] == pytest.approx(_unwrapped_cut_lat(x0, y0, x1, y1), abs=1e-7)
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.tuples(st.floats(-179.99, 179.99), st.floats(-80.0, 80.0)),
+                min_size=2, max_size=30))
+def test_cut_parts_never_cross_and_keep_every_vertex(points):
+    lon = [p[0] for p in points]
+    lat = [p[1] for p in points]
+    parts = cut_at_antimeridian(lon, lat)
+    crossings = sum(abs(b - a) > 180.0 for a, b in zip(lon, lon[1:], strict=False))
+    assert len(parts) == crossings + 1
+    kept = []
+    for k, part in enumerate(parts):
+        xs = [p[0] for p in part]
+        assert all(abs(b - a) <= 180.0 for a, b in zip(xs, xs[1:], strict=False))
+        kept += part[(k > 0):len(part) - (k < len(parts) - 1)]  # drop the added cut points
+    assert kept == [[x, y] for x, y in points]

@@ -189,6 +189,7 @@ def run_campaign(
     progress: bool = True,
     executor: str = "dask",
     n_workers: int | None = None,
+    allow_gaps: bool = False,
 ) -> CampaignSummary:
     """Review an archive of feeds in time chunks on dask.distributed and combine the results.
 
@@ -216,6 +217,9 @@ def run_campaign(
         this process (a baseline for benchmarks).
     n_workers
         Workers of the local cluster (default: one per usable core).
+    allow_gaps
+        Passed to each chunk's review: accept silences of every radar longer
+        than the review run allows (each becomes a warning in the chunk).
 
     Raises
     ------
@@ -257,7 +261,8 @@ def run_campaign(
                     name=p.name, core=p.core, window=p.window,
                     feeds=tuple(f.path for f in p.files), feed_sha256=tuple(f.sha256 for f in p.files),
                     sensors=str(sensors), zones=str(zones), rules=str(rules),
-                    config_sha256=config_sha, out_dir=str(out_dir), seed=seed, settings=settings)
+                    config_sha256=config_sha, out_dir=str(out_dir), seed=seed, settings=settings,
+                    allow_gaps=allow_gaps)
                 task = replace(task, key=chunk_key(task))
                 done = read_done(task.folder, task.key)
                 if done is not None:

@@ -61,6 +61,7 @@ class ChunkTask:
     out_dir: str
     seed: int = 0
     settings: FilterSettings = field(default_factory=FilterSettings)
+    allow_gaps: bool = False
     key: str = ""
 
     @property
@@ -78,6 +79,7 @@ def chunk_key(task: ChunkTask) -> str:
         "core": list(task.core),
         "window": list(task.window),
         "seed": task.seed,
+        "allow_gaps": task.allow_gaps,
         "settings": asdict(task.settings),
     }
     text = json.dumps(payload, sort_keys=True, separators=(",", ":"), default=str)
@@ -209,16 +211,19 @@ def run_chunk(task: ChunkTask) -> dict[str, Any]:
 
     def collect(inp: Any, tset: TrajectorySet, alerts: Sequence[Any]) -> None:
         kept["health"] = radar_health(inp.plots, inp.scans, inp.sensors, tset)
-        _save_states(tmp / STATES_FILE, _boundary_trajectories(tset, task), tset)
+        kept["states"] = (_boundary_trajectories(tset, task), tset)
         kept["trajectories"] = len(tset)
 
+    # the review run writes (and swaps in) its own folder inside the staging folder
+    run_dir = tmp / "run"
     try:
         tmp.mkdir()
         summary = run_review(
-            list(task.feeds), sensors=task.sensors, zones=task.zones, rules=task.rules, out=tmp,
-            settings=task.settings, seed=task.seed, progress=False, window=task.window,
-            collect=collect,
+            list(task.feeds), sensors=task.sensors, zones=task.zones, rules=task.rules,
+            out=run_dir, settings=task.settings, seed=task.seed, progress=False,
+            window=task.window, collect=collect, allow_gaps=task.allow_gaps,
         )
+        _save_states(run_dir / STATES_FILE, *kept.pop("states"))
         result = {
             **base, "status": "done", "reason": "",
             "trajectories": kept["trajectories"], "alerts": len(summary.alerts),
@@ -228,12 +233,13 @@ def run_chunk(task: ChunkTask) -> dict[str, Any]:
             "cpu_s": time.process_time() - cpu0,
             "peak_rss_mb": peak_rss_mb(),
         }
-        atomic_write_text(tmp / CHUNK_FILE, json.dumps(result, indent=1, sort_keys=True) + "\n")
+        atomic_write_text(run_dir / CHUNK_FILE, json.dumps(result, indent=1, sort_keys=True) + "\n")
         old = None
         if final.exists():
             old = parent / f".{task.name}.old-{uuid.uuid4().hex[:12]}"
             os.replace(final, old)
-        os.replace(tmp, final)
+        os.replace(run_dir, final)
+        _remove(tmp)
         if old is not None:
             _remove(old)
         return result

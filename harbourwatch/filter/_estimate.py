@@ -114,12 +114,16 @@ def build_output(end: FilterEnd) -> FilterOutput:
         tt = np.concatenate([np.full(r.bids.size, r.time) for r in end.as_seen])
         bids = np.concatenate([r.bids for r in end.as_seen])
         names = {int(b): ids.get(int(b), f"P{int(b)}") for b in np.unique(bids)}
+        track = np.array([names[int(b)] for b in bids], dtype="<U16")
+        # rows by (time, track): the order of Bernoullis within a scan follows the order
+        # of the plots in the input, which must not show in any output
+        order = np.lexsort((track, tt))
         as_seen = AsSeenTable(
-            time=tt,
-            track=np.array([names[int(b)] for b in bids], dtype="<U16"),
-            mean=np.concatenate([r.mean for r in end.as_seen]),
-            sd=np.concatenate([r.sd for r in end.as_seen]),
-            existence=np.concatenate([r.existence for r in end.as_seen]),
+            time=tt[order],
+            track=track[order],
+            mean=np.concatenate([r.mean for r in end.as_seen])[order],
+            sd=np.concatenate([r.sd for r in end.as_seen])[order],
+            existence=np.concatenate([r.existence for r in end.as_seen])[order],
         )
     else:
         as_seen = AsSeenTable.empty()

@@ -35,8 +35,18 @@ from numpy.typing import NDArray
 Array = NDArray[np.float64]
 
 
+#: At most this many cells across one cover: bounds the grid of a very long-range radar.
+_MAX_CELLS_ACROSS = 1000
+
+
 class UndetectedDensity:
-    """Undetected-vessel density per m² on a grid of square cells."""
+    """Undetected-vessel density per m² on a sparse grid of square cells.
+
+    Only the cells whose centre lies inside some radar's cover (and the cells
+    of the birth regions within each radar's square ``site ± range``) are
+    stored, as sorted flat indices of one global grid: two radars 1000 km
+    apart cost what two separate ones cost, not the square between them.
+    """
 
     def __init__(
         self,
@@ -56,6 +66,7 @@ class UndetectedDensity:
         if cell_m is None:
             # about 100 cells across the largest cover, 250-500 m for harbour radars
             cell_m = float(np.clip(2 * rng_a.max() / 100.0, 50.0, 500.0))
+            cell_m = max(cell_m, float(2 * rng_a.max() / _MAX_CELLS_ACROSS))
         self.cell = cell_m
         self.origin = lo
         self.shape = (
@@ -63,10 +74,26 @@ class UndetectedDensity:
             max(1, int(math.ceil((hi[1] - lo[1]) / cell_m))),
         )
         nx, ny = self.shape
-        ce = lo[0] + (np.arange(nx) + 0.5) * cell_m
-        cn = lo[1] + (np.arange(ny) + 0.5) * cell_m
-        E, N = np.meshgrid(ce, cn, indexing="ij")
-        self.centres = np.column_stack([E.ravel(), N.ravel()])
+        squares = []  # per radar: the flat indices and centres of the cells of its square
+        cover_keys = []
+        for site, r in zip(sites_a, rng_a, strict=True):
+            i0 = max(0, int(math.floor((site[0] - r - lo[0]) / cell_m)))
+            i1 = min(nx, int(math.ceil((site[0] + r - lo[0]) / cell_m)) + 1)
+            j0 = max(0, int(math.floor((site[1] - r - lo[1]) / cell_m)))
+            j1 = min(ny, int(math.ceil((site[1] + r - lo[1]) / cell_m)) + 1)
+            ii, jj = np.meshgrid(np.arange(i0, i1), np.arange(j0, j1), indexing="ij")
+            keys = (ii * ny + jj).ravel()
+            ce = lo[0] + (ii.ravel() + 0.5) * cell_m
+            cn = lo[1] + (jj.ravel() + 0.5) * cell_m
+            squares.append((keys, ce, cn))
+            cover_keys.append(keys[np.hypot(ce - site[0], cn - site[1]) <= r])
+        region_keys = []
+        for poly, _ in regions:
+            hits = [k[shapely.contains_xy(poly, e, n)] for k, e, n in squares]
+            region_keys.append(np.unique(np.concatenate(hits)))
+        self.keys = np.unique(np.concatenate(cover_keys + region_keys))
+        kx, ky = np.divmod(self.keys, ny)
+        self.centres = np.column_stack([lo[0] + (kx + 0.5) * cell_m, lo[1] + (ky + 0.5) * cell_m])
         self.in_cover = [
             np.hypot(self.centres[:, 0] - s[0], self.centres[:, 1] - s[1]) <= r
             for s, r in zip(sites_a, rng_a, strict=True)
@@ -78,21 +105,27 @@ class UndetectedDensity:
         self.tau = float(mean_lifetime_s)
         self.D = np.where(union, initial_vessels / area, 0.0)
         self.birth = np.where(union, arrivals_per_hour / 3600.0 / area, 0.0)
-        for poly, per_hour in regions:
-            inside = shapely.contains_xy(poly, self.centres[:, 0], self.centres[:, 1])
+        for (poly, per_hour), rk in zip(regions, region_keys, strict=True):
+            inside = np.isin(self.keys, rk)
             if not inside.any():
                 p = shapely.get_coordinates(poly.representative_point())[0]
-                inside = np.zeros(union.size, bool)
-                inside[self._cells(p[None, :])[0]] = True
+                c = int(self._cells(p[None, :])[0])
+                if c < 0:
+                    continue  # the region lies outside every cover: no plot can see it
+                inside[c] = True
             self.birth[inside] += per_hour / 3600.0 / (inside.sum() * cell_area)
         self.t: float | None = None
 
     def _cells(self, z: Array) -> NDArray[np.int64]:
-        """Flat cell index of each position, ``-1`` outside the grid."""
-        ij = np.floor((z - self.origin) / self.cell).astype(np.int64)
+        """Index of each position's cell among the stored cells, ``-1`` where none is stored."""
+        ij = np.floor((z - self.origin) / self.cell)
         nx, ny = self.shape
-        ok = (ij[:, 0] >= 0) & (ij[:, 0] < nx) & (ij[:, 1] >= 0) & (ij[:, 1] < ny)
-        return np.where(ok, ij[:, 0] * ny + ij[:, 1], -1)
+        with np.errstate(invalid="ignore"):
+            ok = (ij[:, 0] >= 0) & (ij[:, 0] < nx) & (ij[:, 1] >= 0) & (ij[:, 1] < ny)
+        ij = np.where(ok[:, None], ij, 0).astype(np.int64)
+        flat = ij[:, 0] * ny + ij[:, 1]
+        pos = np.minimum(np.searchsorted(self.keys, flat), self.keys.size - 1)
+        return np.where(ok & (self.keys[pos] == flat), pos, -1)
 
     def predict(self, t: float) -> None:
         """Advance the density to time ``t`` (survival and births)."""

@@ -68,6 +68,7 @@ from harbourwatch.filter._association import (
     update_group,
     update_single,
 )
+from harbourwatch.filter._cluttermap import ClutterMap
 from harbourwatch.filter._estimate import AsSeenRows, FilterEnd, build_output
 from harbourwatch.filter._gating import MIN_STEP_S, chi2_gate, cover_detection, gate_pairs
 from harbourwatch.filter._hypotheses import (
@@ -126,6 +127,7 @@ class _Filter:
             regions=[(b.polygon, b.arrivals_per_hour) for b in birth_regions],
         )
         self.nodes = NodeStore()
+        self.clutter_map = ClutterMap()
         self.clusters: list[Cluster] = []
         self.retired: list[Cluster] = []  # every local hypothesis frozen
         self.next_bid = 0
@@ -235,7 +237,11 @@ class _Filter:
             np.hypot(z[:, 0] - sensor.site[0], z[:, 1] - sensor.site[1]) <= sensor.max_range_m
         )
         e = np.where(in_range, sensor.detection_probability, 0.0) * self.ppp.density(z)
-        lam = sensor.clutter_intensity
+        # clutter intensity: the configured rate, raised in cells of a persistent storm
+        explained = np.zeros(m, bool)
+        explained[jj[r[ii] > 0.5]] = True
+        lam = self.clutter_map.intensity(scan.sensor, z, ~explained, sensor.clutter_intensity,
+                                         math.pi * sensor.max_range_m**2)
         w_new = np.maximum(e + lam, 1e-300)  # > 0: every plot can always be clutter
         ln_new = np.log(w_new)
         r_new = e / w_new

@@ -7,6 +7,7 @@ complete file stays in place until its replacement is complete.
 from __future__ import annotations
 
 import contextlib
+import errno
 import hashlib
 import os
 import tempfile
@@ -14,16 +15,48 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import IO
 
-__all__ = ["atomic_open", "atomic_write_text", "atomic_write_bytes", "sha256_file"]
+from harbourwatch.errors import OutputError
+
+__all__ = ["atomic_open", "atomic_write_text", "atomic_write_bytes", "sha256_file", "mount_point",
+           "output_error"]
+
+
+def mount_point(path: str | os.PathLike[str]) -> Path:
+    """The mount point of the filesystem that holds ``path`` (or would, once created)."""
+    p = Path(os.path.abspath(path))
+    while not p.exists() and p != p.parent:
+        p = p.parent
+    while not os.path.ismount(p) and p != p.parent:
+        p = p.parent
+    return p
+
+
+def output_error(exc: OSError, path: str | os.PathLike[str]) -> OutputError:
+    """The :class:`OutputError` for an ``OSError`` met while writing ``path``."""
+    if isinstance(exc, OutputError):
+        return exc
+    if exc.errno in (errno.ENOSPC, errno.EDQUOT):
+        reason = f"no space left on {mount_point(path)}"
+    else:
+        reason = (exc.strerror or str(exc)).lower()
+    return OutputError(reason, path=path)
 
 
 @contextlib.contextmanager
 def atomic_open(path: str | os.PathLike[str], mode: str = "w", **kwargs: object) -> Iterator[IO]:  # type: ignore[type-arg]
-    """Open a temporary sibling of ``path`` for writing; rename it over ``path`` on success."""
+    """Open a temporary sibling of ``path`` for writing; rename it over ``path`` on success.
+
+    An ``OSError`` while creating, writing or moving the file (a full disk)
+    comes out as an :class:`~harbourwatch.errors.OutputError` naming ``path``;
+    the temporary file is removed and an earlier ``path`` is left as it was.
+    """
     target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
-    os.close(fd)
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+        os.close(fd)
+    except OSError as exc:
+        raise output_error(exc, target) from exc
     try:
         with open(tmp, mode, **kwargs) as fh:  # type: ignore[call-overload]
             yield fh
@@ -31,9 +64,11 @@ def atomic_open(path: str | os.PathLike[str], mode: str = "w", **kwargs: object)
         os.umask(mask)
         os.chmod(tmp, 0o666 & ~mask)  # mkstemp makes 0600; give the usual file mode
         os.replace(tmp, target)
-    except BaseException:
+    except BaseException as exc:
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)
+        if isinstance(exc, OSError):
+            raise output_error(exc, target) from exc
         raise
 
 

@@ -20,6 +20,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 from os import PathLike
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -53,6 +54,8 @@ class PlotTable:
         ``(N,)`` index into ``files`` and 1-based line number of each row.
     files
         The feed paths as given.
+    sha256
+        Hex SHA-256 of each feed file's bytes, as read (each file is read once).
     duplicates_dropped
         Count of exact duplicate rows removed.
     """
@@ -67,6 +70,7 @@ class PlotTable:
     line: NDArray[np.int64]
     files: tuple[str, ...]
     duplicates_dropped: int = 0
+    sha256: tuple[str, ...] = ()
 
     def __len__(self) -> int:
         return int(self.time.size)
@@ -87,12 +91,16 @@ class Scan:
     plots: NDArray[np.int64]
 
 
+#: Largest per-plot sigma_m accepted, metres: wider than any radar cover, so a larger
+#: value is a unit or typing error (common practice, no source).
+MAX_SIGMA_M = 100_000.0
+
 _COLUMNS = ("time", "sensor", "lat", "lon", "scan", "sigma_m")
 
 
 def _read_one(
     path: str, index: int, sensors: Sequence[SensorConfig]
-) -> dict[str, NDArray]:
+) -> dict[str, Any]:
     """Read and validate one feed file into plain numpy columns (file order)."""
     table: Table = read_table(path)
     n = table.num_rows
@@ -116,8 +124,9 @@ def _read_one(
     else:
         scan = np.full(n, -1, dtype=np.int64)
     if "sigma_m" in table.columns:
-        sigma, p = _parse_float(table.columns["sigma_m"], field="sigma_m", lo=0.0, hi=np.inf, lo_open=True,
-                                optional=True, what="a positive number of metres")
+        sigma, p = _parse_float(table.columns["sigma_m"], field="sigma_m", lo=0.0, hi=MAX_SIGMA_M, lo_open=True,
+                                optional=True,
+                                what=f"a positive number of metres up to {MAX_SIGMA_M:g}")
         problems.append(p)
     else:
         sigma = np.full(n, np.nan)
@@ -132,7 +141,7 @@ def _read_one(
     return {
         "time": time, "sensor": sensor, "lat": lat, "lon": lon, "scan": scan,
         "sigma_m": sigma, "source": np.full(n, index, dtype=np.int64),
-        "line": table.lines.astype(np.int64),
+        "line": table.lines.astype(np.int64), "sha256": table.sha256,
     }
 
 
@@ -154,7 +163,9 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
     Returns
     -------
     PlotTable
-        Rows sorted by time (ties: by file in the order given, then line),
+        Rows sorted by time; ties by sensor, lat, lon, scan and sigma_m, so
+        the order of the rows and their split over files never matter (then
+        by file in the order given and line, for exact duplicates),
         exact duplicates (same time, sensor, lat, lon, scan, sigma_m) dropped
         after the first and counted.
 
@@ -177,6 +188,7 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
     """
     files = tuple(str(p) for p in paths)
     parts = [_read_one(f, i, sensors) for i, f in enumerate(files)]
+    digests = tuple(str(p.pop("sha256")) for p in parts)
     if parts:
         cols = {c: np.concatenate([p[c] for p in parts]) for c in parts[0]}
     else:
@@ -184,7 +196,11 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
     if window is not None:
         inside = (cols["time"] >= window[0]) & (cols["time"] < window[1])
         cols = {c: v[inside] for c, v in cols.items()}
-    order = np.lexsort((cols["line"], cols["source"], cols["time"]))
+    # by time, then by the plot's own values, and only then by file and line: plots that
+    # share a time (a radar stamping a whole revolution at once) come out in the same
+    # order whatever the order of the rows or the split of the files
+    order = np.lexsort((cols["line"], cols["source"], cols["sigma_m"], cols["scan"], cols["lon"],
+                        cols["lat"], cols["sensor"], cols["time"]))
     cols = {c: v[order] for c, v in cols.items()}
     keep = _first_of_duplicates(cols)
     dropped = int(keep.size - np.count_nonzero(keep))
@@ -201,6 +217,7 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
         line=cols["line"].astype(np.int64),
         files=files,
         duplicates_dropped=dropped,
+        sha256=digests,
     )
 
 

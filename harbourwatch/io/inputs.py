@@ -9,10 +9,11 @@ naming the file, line and field, before any computation starts.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from os import PathLike
 
 from harbourwatch.io.feeds import PlotTable, Scan, group_scans, read_feeds
+from harbourwatch.io.gaps import check_gaps
 from harbourwatch.io.records import (
     RuleConfig,
     RuleSchema,
@@ -39,6 +40,11 @@ class RunInputs:
         The plots grouped into scans (see :func:`harbourwatch.io.feeds.group_scans`).
     feed_paths, sensors_path, zones_path, rules_path
         The input paths as given.
+    checksums
+        Hex SHA-256 of every input file's bytes by path, taken while reading
+        it (every input is read once, so a FIFO works).
+    warnings
+        One line per accepted oddity of the inputs (gaps allowed by ``allow_gaps``).
     """
 
     sensors: tuple[SensorConfig, ...]
@@ -50,6 +56,8 @@ class RunInputs:
     sensors_path: str
     zones_path: str
     rules_path: str
+    checksums: Mapping[str, str] = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
 
 
 def load_inputs(
@@ -59,6 +67,7 @@ def load_inputs(
     zones: str | PathLike[str],
     rules: str | PathLike[str],
     rule_schemas: Mapping[str, RuleSchema] | None = None,
+    allow_gaps: bool = False,
     window: tuple[float, float] | None = None,
 ) -> RunInputs:
     """Load and validate sensors, zones, rules and feeds (in that order), then form scans.
@@ -72,6 +81,10 @@ def load_inputs(
     rule_schemas
         Rule kinds by name, to validate the rules strictly (see
         :func:`harbourwatch.io.records.load_rules`).
+    allow_gaps
+        Accept silences of every radar longer than
+        :data:`~harbourwatch.io.gaps.MAX_GAP_S` (named in ``warnings``);
+        without it such a feed is refused (see :func:`~harbourwatch.io.gaps.check_gaps`).
     window
         Optional UTC time window ``(t0, t1)`` in epoch seconds: only plots with
         ``t0 <= time < t1`` are kept (see :func:`harbourwatch.io.feeds.read_feeds`).
@@ -81,13 +94,17 @@ def load_inputs(
     InputError
         The first problem found, naming its file, line and field.
     """
-    sensor_cfg = load_sensors(sensors)
-    zone_cfg = load_zones(zones)
-    rule_cfg = load_rules(rules, zone_cfg, rule_schemas)
+    digests: dict[str, str] = {}
+    sensor_cfg = load_sensors(sensors, digests=digests)
+    zone_cfg = load_zones(zones, digests=digests)
+    rule_cfg = load_rules(rules, zone_cfg, rule_schemas, digests=digests)
     plots = read_feeds(feeds, sensor_cfg, window=window)
+    digests.update(zip(plots.files, plots.sha256, strict=True))
+    warnings = check_gaps(plots, allow_gaps=allow_gaps)
     scans = tuple(group_scans(plots, sensor_cfg))
     return RunInputs(
         sensors=sensor_cfg, zones=zone_cfg, rules=rule_cfg, plots=plots, scans=scans,
         feed_paths=tuple(str(f) for f in feeds), sensors_path=str(sensors),
-        zones_path=str(zones), rules_path=str(rules),
+        zones_path=str(zones), rules_path=str(rules), checksums=digests,
+        warnings=warnings,
     )

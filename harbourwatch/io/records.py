@@ -55,13 +55,16 @@ class ZoneConfig:
     """One geofence zone from the zones GeoJSON.
 
     ``geometry`` is a valid shapely Polygon or MultiPolygon in WGS84
-    longitude/latitude (GeoJSON axis order).
+    longitude/latitude (GeoJSON axis order). ``source`` and ``line`` locate
+    the feature in the zones file (for later messages).
     """
 
     id: str
     name: str
     kind: str
     geometry: BaseGeometry
+    source: str = ""
+    line: int | None = None
 
     @property
     def kind_key(self) -> str:

@@ -8,7 +8,6 @@ reported row is exactly the one the fast path could not read.
 from __future__ import annotations
 
 import csv
-import gzip
 import io
 import re
 from collections.abc import Callable, Sequence
@@ -22,11 +21,10 @@ import pyarrow.parquet as pq
 from numpy.typing import NDArray
 
 from harbourwatch.errors import InputError
+from harbourwatch.io.text import FEED_MAX_BYTES, read_input
 
 REQUIRED = ("time", "sensor", "lat", "lon")
 OPTIONAL = ("scan", "sigma_m")
-_GZIP_MAGIC = b"\x1f\x8b"
-_PARQUET_MAGIC = b"PAR1"
 _ZONE_RE = r"(?:Z|[+-]\d\d:?\d\d)$"
 _DATE_RE = re.compile(r"^\s*[+-]?\d{4}-\d\d")
 #: Epoch seconds accepted: 1970 up to year 2286 (pandas/pyarrow nanosecond range).
@@ -49,6 +47,7 @@ class Table:
     columns: dict[str, pa.ChunkedArray]
     lines: NDArray[np.int64]
     parquet: bool
+    sha256: str = ""
 
     @property
     def num_rows(self) -> int:
@@ -90,26 +89,20 @@ def _ragged(path: str, line: int, width: int, found: int, header: list[str]) -> 
                       file=path, line=line, field=field)
 
 
-def _read_csv(path: str, gz: bool) -> Table:
-    try:
-        with open(path, "rb") as fh:
-            data = fh.read()
-        if gz:
-            data = gzip.decompress(data)
-    except (OSError, EOFError, gzip.BadGzipFile) as exc:
-        raise InputError(f"cannot read the file: {exc}", file=path) from None
-    try:
-        # Checked up front: pyarrow would fail later without saying where.
-        if not data.isascii():
-            data.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        line = data.count(b"\n", 0, exc.start) + 1
-        raise InputError("not valid UTF-8 text", file=path, line=line) from None
+def _read_csv(path: str, data: bytes, sha256: str) -> Table:
+    if b"\n" not in data and b"\r" in data:
+        # classic Mac line ends (CR only): read them as line breaks, lines count the same
+        data = data.replace(b"\r", b"\n")
+    if data and not data.endswith(b"\n"):
+        data += b"\n"  # a last line without its line break (a header-only file included)
     first = data.split(b"\n", 1)[0].decode("utf-8-sig").rstrip("\r")
     if not data.strip():
         raise InputError("empty file: no header line (expected the columns "
                          f"{', '.join(REQUIRED)})", file=path, line=1)
-    header = next(csv.reader([first]), [])
+    try:
+        header = next(csv.reader([first]), [])
+    except csv.Error as exc:
+        raise InputError(f"cannot read the header as CSV: {exc}", file=path, line=1) from None
     present = _check_header(header, path)
 
     ragged: list[tuple[int | None, int, int]] = []
@@ -150,12 +143,12 @@ def _read_csv(path: str, gz: bool) -> Table:
             keep = ~blank
             table = table.filter(pa.array(keep))
             lines = lines[keep]
-    return Table({c: table[c] for c in present}, lines, parquet=False)
+    return Table({c: table[c] for c in present}, lines, parquet=False, sha256=sha256)
 
 
-def _read_parquet(path: str) -> Table:
+def _read_parquet(path: str, data: bytes, sha256: str) -> Table:
     try:
-        table = pq.read_table(path)
+        table = pq.read_table(pa.BufferReader(data))
     except (pa.ArrowException, OSError, ValueError) as exc:
         raise InputError(f"cannot read as Parquet: {exc}", file=path) from None
     present = _check_header(table.column_names, path)
@@ -165,22 +158,19 @@ def _read_parquet(path: str) -> Table:
         if pa.types.is_dictionary(arr.type):
             arr = arr.cast(arr.type.value_type)
         cols[c] = arr
-    return Table(cols, np.arange(2, table.num_rows + 2, dtype=np.int64), parquet=True)
+    return Table(cols, np.arange(2, table.num_rows + 2, dtype=np.int64), parquet=True,
+                 sha256=sha256)
 
 
 def read_table(path: str) -> Table:
-    """Read one feed file (CSV, gzip CSV or Parquet, by its first bytes)."""
-    try:
-        with open(path, "rb") as fh:
-            magic = fh.read(4)
-    except OSError as exc:
-        raise InputError(f"cannot read the file: {exc.strerror or exc}", file=path) from None
-    if magic == _PARQUET_MAGIC:
-        return _read_parquet(path)
-    if not magic:
+    """Read one feed file (CSV, gzip CSV or Parquet, by its first bytes), opening it once."""
+    got = read_input(path, limit=FEED_MAX_BYTES, formats="feed")
+    if got.kind == "parquet":
+        return _read_parquet(path, got.data, got.sha256)
+    if not got.data:
         raise InputError("empty file: no header line (expected the columns "
                          f"{', '.join(REQUIRED)})", file=path, line=1)
-    return _read_csv(path, gz=magic[:2] == _GZIP_MAGIC)
+    return _read_csv(path, got.data, got.sha256)
 
 
 # --- column checks -----------------------------------------------------------------------

@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 import re
 import tomllib
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Mapping, MutableMapping
 from os import PathLike
 from types import MappingProxyType
 from typing import Any
@@ -29,15 +29,21 @@ from harbourwatch.io.text import control_character, read_text
 
 __all__ = ["load_sensors", "load_rules"]
 
+#: Larger integers do not convert to floats exactly (2**53).
+_MAX_EXACT_INT = 2**53
 _TABLE_RE = re.compile(r"^\s*\[")
 _ARRAY_TABLE_RE = re.compile(r"^\s*\[\[\s*([^\]]+?)\s*\]\]")
 _KEY_RE = re.compile(r"""^\s*(?:"([^"]*)"|'([^']*)'|([A-Za-z0-9_-]+))\s*=""")
 
 
-def _read_toml(path: str | PathLike[str]) -> tuple[dict[str, Any], str]:
-    text = read_text(path)
+def _read_toml(path: str | PathLike[str],
+               digests: MutableMapping[str, str] | None) -> tuple[dict[str, Any], str]:
+    text = read_text(path, digests=digests)
     try:
         return tomllib.loads(text), text
+    except RecursionError:
+        raise InputError("TOML nested too deeply to read (arrays or tables inside each other "
+                         "hundreds of levels deep)", file=path) from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = re.search(r"\(at line (\d+), column \d+\)", msg)
@@ -116,21 +122,42 @@ class _Entry:
 
     def number(self, key: str, *, lo: float = -math.inf, hi: float = math.inf,
                lo_open: bool = False, hi_open: bool = False, what: str = "a number",
-               why: str = "") -> float:
+               why: str = "", cap: float | None = None) -> float:
+        """The number under ``key``; ``cap``: a sanity bound above the valid range."""
         if key not in self.data:
             raise self.error(key, f"missing required key in {self.label}")
-        return self.check_number(key, self.data[key], lo=lo, hi=hi, lo_open=lo_open,
-                                 hi_open=hi_open, what=what, why=why)
+        v = self.check_number(key, self.data[key], lo=lo, hi=hi, lo_open=lo_open,
+                              hi_open=hi_open, what=what, why=why)
+        if cap is not None and v > cap:
+            raise self.error(key, f"expected {what} of at most {cap:g}{why}, found {_show(v)}")
+        return v
 
     def check_number(self, key: str, v: Any, *, lo: float, hi: float, lo_open: bool = False,
                      hi_open: bool = False, what: str = "a number", why: str = "") -> float:
-        if isinstance(v, bool) or not isinstance(v, int | float) or not math.isfinite(v):
+        if isinstance(v, bool) or not isinstance(v, int | float):
+            hint = " (text, not a number: remove the quotes)" if _numeric_text(v) else ""
+            raise self.error(key, f"expected {what}, found {_show(v)}{hint}")
+        if isinstance(v, int) and abs(v) > _MAX_EXACT_INT:
+            digits = len(str(abs(v)))
+            raise self.error(key, f"expected {what}{why}, found an integer of {digits} digits "
+                                  "(too large for any measure)")
+        if not math.isfinite(v):
             raise self.error(key, f"expected {what}, found {_show(v)}")
         below = v <= lo if lo_open else v < lo
         above = v >= hi if hi_open else v > hi
         if below or above:
             raise self.error(key, f"expected {what}{why}, found {_show(v)}")
         return v
+
+
+def _numeric_text(v: Any) -> bool:
+    """True for a TOML string that holds a number (``lat = "54.3"``)."""
+    if not isinstance(v, str):
+        return False
+    try:
+        return math.isfinite(float(v))
+    except ValueError:
+        return False
 
 
 def _entries(path: str | PathLike[str], data: Mapping[str, Any], text: str,
@@ -172,10 +199,19 @@ def _duplicate(entry: _Entry, key: str, value: str, seen: dict[str, int | None],
 
 _SENSOR_KEYS = ("id", "lat", "lon", "scan_period_s", "range_sigma_m", "bearing_sigma_deg",
                 "detection_probability", "false_plots_per_scan", "max_range_m")
+#: Upper bounds of the sensor values: far beyond any shore radar (a few tens of km of
+#: cover, seconds per revolution), low enough that no derived grid or count explodes.
+#: Common practice, no source.
+MAX_RANGE_M = 500_000.0
+MAX_SCAN_PERIOD_S = 3600.0
+MAX_RANGE_SIGMA_M = 10_000.0
+MAX_BEARING_SIGMA_DEG = 45.0
+MAX_FALSE_PLOTS_PER_SCAN = 1e6
 _POSITIVE = "a positive number"
 
 
-def load_sensors(path: str | PathLike[str]) -> tuple[SensorConfig, ...]:
+def load_sensors(path: str | PathLike[str], *,
+                 digests: MutableMapping[str, str] | None = None) -> tuple[SensorConfig, ...]:
     """Read the sensor TOML file (``[[sensor]]`` tables) and validate every value.
 
     Raises
@@ -190,7 +226,7 @@ def load_sensors(path: str | PathLike[str]) -> tuple[SensorConfig, ...]:
     A file holding the example of the file contract gives one
     :class:`~harbourwatch.io.records.SensorConfig` with ``lat_deg=54.3012``.
     """
-    data, text = _read_toml(path)
+    data, text = _read_toml(path, digests)
     entries = _entries(path, data, text, "sensor")
     if not entries:
         raise InputError("no sensors: the file needs at least one [[sensor]] table",
@@ -208,18 +244,22 @@ def load_sensors(path: str | PathLike[str]) -> tuple[SensorConfig, ...]:
                                    what="a latitude in degrees from -90 to 90")),
             lon_deg=float(e.number("lon", lo=-180, hi=180,
                                    what="a longitude in degrees from -180 to 180")),
-            scan_period_s=float(e.number("scan_period_s", lo=0, lo_open=True, what=_POSITIVE)),
-            range_sigma_m=float(e.number("range_sigma_m", lo=0, lo_open=True, what=_POSITIVE)),
+            scan_period_s=float(e.number("scan_period_s", lo=0, lo_open=True, what=_POSITIVE,
+                                         cap=MAX_SCAN_PERIOD_S)),
+            range_sigma_m=float(e.number("range_sigma_m", lo=0, lo_open=True, what=_POSITIVE,
+                                         cap=MAX_RANGE_SIGMA_M)),
             bearing_sigma_deg=float(e.number("bearing_sigma_deg", lo=0, lo_open=True,
-                                             what=_POSITIVE)),
+                                             what=_POSITIVE, cap=MAX_BEARING_SIGMA_DEG)),
             detection_probability=float(e.number(
                 "detection_probability", lo=0, hi=1, lo_open=True, hi_open=True,
                 what="a probability above 0 and below 1",
                 why=" (strictly below 1: the filter weighs a missed detection by "
                     "1 - detection_probability)")),
             false_plots_per_scan=float(e.number("false_plots_per_scan", lo=0,
-                                                what="a number zero or above")),
-            max_range_m=float(e.number("max_range_m", lo=0, lo_open=True, what=_POSITIVE)),
+                                                what="a number zero or above",
+                                                cap=MAX_FALSE_PLOTS_PER_SCAN)),
+            max_range_m=float(e.number("max_range_m", lo=0, lo_open=True, what=_POSITIVE,
+                                       cap=MAX_RANGE_M)),
         ))
     return tuple(out)
 
@@ -233,6 +273,8 @@ def load_rules(
     path: str | PathLike[str],
     zones: Iterable[ZoneConfig],
     schemas: Mapping[str, RuleSchema] | None = None,
+    *,
+    digests: MutableMapping[str, str] | None = None,
 ) -> tuple[RuleConfig, ...]:
     """Read the rules TOML file (``[[rule]]`` tables) and validate it.
 
@@ -255,7 +297,7 @@ def load_rules(
     """
     if schemas is None:
         schemas = RULE_SCHEMAS
-    data, text = _read_toml(path)
+    data, text = _read_toml(path, digests)
     zone_ids = [z.id for z in zones]
     seen: dict[str, int | None] = {}
     out = []

@@ -5,14 +5,18 @@ from __future__ import annotations
 import json
 import math
 import re
+from collections.abc import MutableMapping
 from os import PathLike
 from typing import Any
 
+import shapely
+import shapely.errors
+import shapely.geometry
 from shapely.validation import explain_validity
 
 from harbourwatch.errors import InputError
 from harbourwatch.io.records import ZoneConfig
-from harbourwatch.io.text import control_character, read_text
+from harbourwatch.io.text import ZONES_MAX_BYTES, control_character, read_text
 
 __all__ = ["load_zones"]
 
@@ -23,26 +27,31 @@ _FEATURE_RE = re.compile(r'"type"\s*:\s*"Feature"')
 class _Feature:
     """One feature of the collection, located in the raw text for messages."""
 
-    def __init__(self, path: str | PathLike[str], text: str, index: int, raw: Any) -> None:
+    def __init__(self, path: str | PathLike[str], text: str, index: int, raw: Any,
+                 nth: int = 0) -> None:
         self.path, self.index, self.raw = path, index, raw
         props = raw.get("properties") if isinstance(raw, dict) else None
         fid = props.get("id") if isinstance(props, dict) else None
         self.id = fid if isinstance(fid, str) else None
-        self.line = _feature_line(text, index, self.id)
+        self.line = _feature_line(text, index, self.id, nth)
         self.label = f"feature {index + 1}" + (f" ({self.id!r})" if self.id else "")
 
     def error(self, field: str, message: str) -> InputError:
         return InputError(f"{self.label}: {message}", file=self.path, line=self.line, field=field)
 
 
-def _feature_line(text: str, index: int, fid: str | None) -> int | None:
-    """Best effort: the line of the feature's ``"id"``, else of its N-th ``"type": "Feature"``."""
+def _feature_line(text: str, index: int, fid: str | None, nth: int = 0) -> int | None:
+    """Best effort: the line of the feature's ``"id"``, else of its N-th ``"type": "Feature"``.
+
+    ``nth`` counts the earlier features with the same id, so a duplicate is
+    located at its own line, not at the first feature's.
+    """
     if fid is not None:
-        m = re.search(r'"id"\s*:\s*' + re.escape(json.dumps(fid)), text)
-        if m is None:
-            m = re.search(r'"id"\s*:\s*' + re.escape(json.dumps(fid, ensure_ascii=False)), text)
-        if m is not None:
-            return text.count("\n", 0, m.start()) + 1
+        for form in (json.dumps(fid), json.dumps(fid, ensure_ascii=False)):
+            found = list(re.finditer(r'"id"\s*:\s*' + re.escape(form), text))
+            if found:
+                m = found[min(nth, len(found) - 1)]
+                return text.count("\n", 0, m.start()) + 1
     matches = list(_FEATURE_RE.finditer(text))
     if index < len(matches):
         return text.count("\n", 0, matches[index].start()) + 1
@@ -93,14 +102,15 @@ def _optional_string(f: _Feature, props: dict[str, Any], key: str, default: str)
     return v
 
 
-def load_zones(path: str | PathLike[str]) -> tuple[ZoneConfig, ...]:
+def load_zones(path: str | PathLike[str], *,
+               digests: MutableMapping[str, str] | None = None) -> tuple[ZoneConfig, ...]:
     """Read the zones GeoJSON FeatureCollection and validate every feature.
 
     Features must be Polygon or MultiPolygon (holes allowed) with valid
     geometry in WGS84 longitude/latitude, and ``properties.id`` a unique
     string; ``name`` (default: the id) and ``kind`` (default ``""``) are
-    optional strings. Geometries are read with :func:`geopandas.read_file`;
-    the structure is checked from the JSON text so each message can name the
+    optional strings. Geometries are read with :func:`shapely.geometry.shape`
+    from the text already parsed (the file is read once); the structure is checked from the JSON text so each message can name the
     feature and its line (the line of its ``"id"``, best effort).
 
     Raises
@@ -108,9 +118,12 @@ def load_zones(path: str | PathLike[str]) -> tuple[ZoneConfig, ...]:
     InputError
         Naming the file, line and property of the first problem.
     """
-    text = read_text(path)
+    text = read_text(path, limit=ZONES_MAX_BYTES, digests=digests)
     try:
         doc = json.loads(text)
+    except RecursionError:
+        raise InputError("JSON nested too deeply to read (arrays or objects inside each "
+                         "other thousands of levels deep)", file=path) from None
     except json.JSONDecodeError as exc:
         raise InputError(f"invalid JSON: {exc.msg} (column {exc.colno})",
                          file=path, line=exc.lineno) from None
@@ -123,8 +136,12 @@ def load_zones(path: str | PathLike[str]) -> tuple[ZoneConfig, ...]:
         raise InputError("expected 'features' to be an array", file=path, field="features")
     seen: dict[str, int | None] = {}
     feats: list[tuple[_Feature, str, dict[str, Any]]] = []
+    ids_so_far: list[Any] = []
     for i, raw in enumerate(raw_features):
-        f = _Feature(path, text, i, raw)
+        props_raw = raw.get("properties") if isinstance(raw, dict) else None
+        rid = props_raw.get("id") if isinstance(props_raw, dict) else None
+        f = _Feature(path, text, i, raw, nth=ids_so_far.count(rid) if isinstance(rid, str) else 0)
+        ids_so_far.append(rid)
         if not isinstance(raw, dict) or raw.get("type") != "Feature":
             raise f.error("type", "expected a GeoJSON Feature object")
         geom = raw.get("geometry")
@@ -155,25 +172,22 @@ def load_zones(path: str | PathLike[str]) -> tuple[ZoneConfig, ...]:
     if not feats:
         return ()
 
-    geoms = _read_geometries(path, len(feats))
     out = []
-    for (f, fid, props), shape in zip(feats, geoms, strict=True):
+    for f, fid, props in feats:
+        shape = _geometry(f)
         if shape is None or shape.is_empty:
             raise f.error("geometry", "empty geometry")
         if not shape.is_valid:
             raise f.error("geometry", f"invalid polygon: {explain_validity(shape)}")
         out.append(ZoneConfig(id=fid, name=_optional_string(f, props, "name", fid),
-                              kind=_optional_string(f, props, "kind", ""), geometry=shape))
+                              kind=_optional_string(f, props, "kind", ""), geometry=shape,
+                              source=str(path), line=f.line))
     return tuple(out)
 
 
-def _read_geometries(path: str | PathLike[str], count: int) -> list[Any]:
-    import geopandas
-
+def _geometry(f: _Feature) -> Any:
+    """The feature's geometry as shapely reads GeoJSON (from the text already parsed)."""
     try:
-        frame = geopandas.read_file(path)
-    except Exception as exc:  # noqa: BLE001 - any reader failure is bad input here
-        raise InputError(f"cannot read the geometries: {exc}", file=path) from None
-    if len(frame) != count:
-        raise InputError(f"read {len(frame)} geometries for {count} features", file=path)
-    return list(frame.geometry)
+        return shapely.geometry.shape(f.raw["geometry"])
+    except (ValueError, TypeError, shapely.errors.ShapelyError) as exc:
+        raise f.error("geometry", f"cannot read the geometry: {exc}") from None

@@ -7,7 +7,7 @@ inline and make no network request unless the user configured a tile server.
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -36,19 +36,30 @@ class ReportInputs:
     alerts: Sequence[Alert]
     provenance: Mapping[str, Any]
     tile_url: str | None = None
+    #: IANA time zone shown beside UTC on the pages (``--display-tz``), or ``None``.
+    display_tz: str | None = None
 
 
-def write_reports(out_dir: Path, inputs: ReportInputs) -> list[Path]:
+def write_reports(out_dir: Path, inputs: ReportInputs, *,
+                  progress: Callable[[int, int], None] | None = None) -> list[Path]:
     """Write ``report.html`` and ``incidents/alert-NNNN.html`` (one per alert) under ``out_dir``.
 
     Incident pages are numbered from 1 in the order of ``inputs.alerts``.
     Each file is written to a temporary file in its folder and then moved
-    into place. Returns the written paths, overview first.
+    into place. ``progress(pages_done, pages_total)`` is called after each
+    page. Returns the written paths, overview first.
     """
     out_dir = Path(out_dir)
+    total = 1 + len(inputs.alerts)
+    if progress is not None:
+        progress(0, total)
     written = [write_atomic(out_dir / "report.html", overview_html(inputs))]
+    if progress is not None:
+        progress(1, total)
     for i in range(len(inputs.alerts)):
         written.append(
             write_atomic(out_dir / "incidents" / incident_name(i), incident_html(inputs, i))
         )
+        if progress is not None:
+            progress(i + 2, total)
     return written

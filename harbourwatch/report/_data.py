@@ -172,8 +172,14 @@ def zone_visits(ts: TrajectorySet, zones: Sequence[ZoneConfig],
     return out
 
 
-def vessels_present(ts: TrajectorySet, step_s: float = 60.0) -> tuple[Array, Array]:
-    """Count of trajectories spanning each time of a ``step_s`` grid over the feed."""
+def vessels_present(ts: TrajectorySet, step_s: float = 60.0,
+                    max_points: int = 20_000) -> tuple[Array, Array]:
+    """Count of trajectories spanning each time of a ``step_s`` grid over the feed.
+
+    The step grows beyond ``step_s`` when the feed is so long (gaps allowed by
+    ``--allow-gaps``) that the grid would hold more than ``max_points``.
+    """
+    step_s = max(step_s, (ts.feed_end - ts.feed_start) / max_points)
     t = np.arange(ts.feed_start, ts.feed_end + 1e-9, step_s)
     if t.size == 0:
         t = np.array([ts.feed_start])

@@ -14,9 +14,10 @@ from shapely.geometry import MultiPolygon, Polygon
 from harbourwatch.io.records import ZoneConfig
 from harbourwatch.io.timefmt import format_clock
 from harbourwatch.report._data import SIMPLIFY_TOLERANCE_M
-from harbourwatch.report._html import esc_tooltip
+from harbourwatch.report._html import esc_tooltip, tooltip_user
 from harbourwatch.report._mapbase import round5
 from harbourwatch.report._style import TRACK_STYLE, zone_style
+from harbourwatch.rules.evaluate import Alert
 from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.trajectories import Trajectory
 
@@ -26,6 +27,13 @@ __all__ = ["add_zones", "add_track", "ellipse_latlon", "zone_label", "track_stat
 def zone_label(z: ZoneConfig) -> str:
     """``Name (id)`` or just the id when the zone has no separate name (not escaped)."""
     return f"{z.name} ({z.id})" if z.name and z.name != z.id else z.id
+
+
+def alert_strings(a: Alert, zones: Sequence[ZoneConfig]) -> tuple[str, ...]:
+    """The user strings an alert's sentences quote: rule id, zone id and zone name."""
+    names = [a.rule, a.zone]
+    names += [z.name for z in zones if z.id == a.zone and z.name]
+    return tuple(n for n in names if n)
 
 
 def _polygons(geom: shapely.Geometry) -> list[Polygon]:
@@ -58,7 +66,7 @@ def add_zones(parent: Element, zones: Sequence[ZoneConfig],
     for z in sorted(zones, key=lambda z: (z.kind_key != "land", z.id)):
         st = zone_style(z.kind)
         land = z.kind_key == "land"
-        tip = f"{zone_label(z)} \u2014 {z.kind or 'zone'}"
+        tip = f"{tooltip_user(zone_label(z))} \u2014 {tooltip_user(z.kind or 'zone')}"
         for poly in _polygons(_simplify_lonlat(z.geometry, frame)):
             rings = [round5((lat, lon) for lon, lat in poly.exterior.coords)]
             rings += [round5((lat, lon) for lon, lat in r.coords) for r in poly.interiors]
@@ -72,7 +80,7 @@ def add_zones(parent: Element, zones: Sequence[ZoneConfig],
                 fill_opacity=st.fill_opacity,
                 class_name="hw-land" if land else "hw-zone",
                 interactive=not land,
-                tooltip=None if land else folium.Tooltip(esc_tooltip(tip)),
+                tooltip=None if land else folium.Tooltip(tip),
             ).add_to(parent)
 
 

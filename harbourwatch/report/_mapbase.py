@@ -52,7 +52,7 @@ def new_map(
         zoom_start=12,
         tiles=None,
         height=height_px,
-        control_scale=True,
+        control_scale=False,  # our own scale bar in nautical miles (assets/mapmarks.js)
         prefer_canvas=False,
         zoom_snap=0.25,
     )

@@ -8,7 +8,7 @@ from typing import Any
 
 from harbourwatch.io.atomic import atomic_write_text
 from harbourwatch.report._assets import leaflet_css, leaflet_js, own_asset
-from harbourwatch.report._html import esc
+from harbourwatch.report._html import esc, esc_user
 from harbourwatch.report._mapbase import MapParts
 from harbourwatch.units import CAUTION
 
@@ -18,19 +18,21 @@ __all__ = ["CAUTION", "document", "provenance_html", "write_atomic"]
 
 
 def document(*, title: str, body: str, parts: MapParts, scripts: Sequence[str] = (),
-             data_blocks: Mapping[str, str] | None = None) -> str:
+             data_blocks: Mapping[str, str] | None = None, page_class: str = "") -> str:
     """A complete, self-contained HTML page.
 
     ``body`` is our own (escaped) markup; ``parts`` the folium map pieces,
     whose ``html`` must already be inside ``body`` (see :func:`map_slot`).
     ``data_blocks`` maps element ids to JSON text (already script-safe) put
     into ``<script type="application/json">`` blocks; ``scripts`` are names
-    of our own assets run after the map script.
+    of our own assets run after the map script; ``page_class`` is put on
+    ``<body>`` (our own constant, selects the print layout).
     """
     data = "".join(
         f'<script type="application/json" id="{esc(k)}">{v}</script>\n'
         for k, v in (data_blocks or {}).items()
     )
+    body_tag = f'<body class="{esc(page_class)}">' if page_class else "<body>"
     own = "".join(f"<script>\n{own_asset(name)}</script>\n" for name in scripts)
     return (
         "<!DOCTYPE html>\n"
@@ -41,7 +43,8 @@ def document(*, title: str, body: str, parts: MapParts, scripts: Sequence[str] =
         f"<script>\n{leaflet_js()}</script>\n"
         f"{parts.header}\n"
         f"<style>\n{own_asset('report.css')}</style>\n"
-        "</head>\n<body>\n"
+        "</head>\n"
+        f"{body_tag}\n"
         f'<p class="hw-caution" role="note" id="hw-caution">{esc(CAUTION)}</p>\n'
         f"<main>\n{body}\n</main>\n"
         f"<script>\n{parts.script}\n</script>\n"
@@ -53,6 +56,8 @@ def document(*, title: str, body: str, parts: MapParts, scripts: Sequence[str] =
 def _scalar(v: Any) -> str:
     if isinstance(v, float):
         return esc(f"{v:.6g}")
+    if isinstance(v, str):  # file names, rule ids: user strings, isolated
+        return esc_user(v)
     return esc(v)
 
 

@@ -121,8 +121,13 @@ def time_chart(
     hlines: Sequence[HLine] = (),
     y_min: float = 0.0,
     height: float = H,
+    standalone: bool = False,
 ) -> str:
-    """A line chart over time with optional shaded spans and reference lines."""
+    """A line chart over time with optional shaded spans and reference lines.
+
+    Returns a ``<figure>`` for our pages, or with ``standalone`` a whole SVG
+    document (its own styles and legend, for a chart outside our pages).
+    """
     ys = [np.asarray(s.y, float) for s in series]
     finite = [y[np.isfinite(y)] for y in ys]
     y_max = max([float(f.max()) for f in finite if f.size] + [h.y for h in hlines] + [1.0])
@@ -136,7 +141,7 @@ def time_chart(
     def Y(y: Any) -> Any:
         return MT + ph - (np.asarray(y, float) - y_min) / (y_max - y_min) * ph
 
-    out = [_svg_open(title, height)]
+    out = [_svg_open(title, height, cls="hw-chart hw-time")]
     for b in bands:
         a, e = max(b.start, t0), min(b.end, t1)
         if e < a:
@@ -196,9 +201,34 @@ def time_chart(
             else:
                 out.append(f'<polyline class="hw-line" points="{pts}" fill="none" '
                            f'stroke="{s.colour}" stroke-width="{s.width}"{dash}/>')
-    out.append("</svg>")
     legend = [(s.label, s.colour, s.dash) for s in series if s.label]
+    if standalone:
+        return _standalone(out, legend, height)
+    out.append("</svg>")
     return _figure("".join(out), caption, legend)
+
+
+#: The look of a chart's parts where our page styles are absent (a standalone SVG file).
+_STANDALONE_STYLE = (
+    "text{font:11px sans-serif;fill:#1b1b1b}.hw-small{font-size:9.5px}.hw-axis{fill:#4a4a48}"
+    ".hw-grid{stroke:#e3e3de;stroke-width:0.8}.hw-band{fill:#56B4E9;fill-opacity:0.22}"
+    ".hw-gap{fill:#D55E00;fill-opacity:0.30;stroke:#D55E00;stroke-width:0.8}"
+)
+
+
+def _standalone(parts: list[str], legend: Sequence[tuple[str, str, str | None]],
+                height: float) -> str:
+    """The chart's parts as one SVG document, the legend drawn inside the plot area."""
+    head = parts[0].replace("<svg ", '<svg xmlns="http://www.w3.org/2000/svg" ', 1)
+    keys = []
+    for n, (label, colour, dash) in enumerate(legend):
+        y = MT + 14 + 15 * n
+        dash_attr = f' stroke-dasharray="{dash}"' if dash else ""
+        keys.append(f'<line x1="{_f(ML + 10)}" x2="{_f(ML + 34)}" y1="{_f(y - 4)}" y2="{_f(y - 4)}" '
+                    f'stroke="{colour}" stroke-width="2.5"{dash_attr}/>'
+                    f'<text x="{_f(ML + 40)}" y="{_f(y)}">{esc(label)}</text>')
+    return (head + f"<style>{_STANDALONE_STYLE}</style>" + "".join(parts[1:]) + "".join(keys)
+            + "</svg>")
 
 
 def bar_chart(labels: Sequence[str], values: Sequence[float], *, title: str, caption: str,

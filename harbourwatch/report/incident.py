@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Mapping
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 import folium
@@ -12,13 +13,30 @@ from harbourwatch.io.records import RuleConfig, ZoneConfig
 from harbourwatch.io.timefmt import format_clock, format_utc_one
 from harbourwatch.report import charts
 from harbourwatch.report._data import state_index, track_latlon
-from harbourwatch.report._html import esc, esc_tooltip, fmt_prob
-from harbourwatch.report._layers import add_track, add_zones, ellipse_latlon, zone_label
-from harbourwatch.report._mapbase import PointLayer, new_map, render_parts, round5
+from harbourwatch.report._fmt import fmt_clock, fmt_day, fmt_dm, fmt_sd2
+from harbourwatch.report._html import (
+    esc,
+    esc_isolating,
+    esc_tooltip,
+    esc_user,
+    fmt_prob,
+    script_json,
+    tooltip_user,
+)
+from harbourwatch.report._layers import (
+    add_track,
+    add_zones,
+    alert_strings,
+    ellipse_latlon,
+    track_status,
+    zone_label,
+)
+from harbourwatch.report._mapbase import MapParts, PointLayer, new_map, render_parts, round5
 from harbourwatch.report._page import document
-from harbourwatch.report._style import PALETTE
+from harbourwatch.report._style import INK, PALETTE, TRACK_STYLE, zone_style
 from harbourwatch.report.overview import map_bounds
 from harbourwatch.rules.evaluate import Alert
+from harbourwatch.rules.positions import AlertPositions, alert_positions
 from harbourwatch.trajectories import Trajectory, TrajectorySet
 from harbourwatch.units import KNOT_M_S, fmt_duration
 
@@ -36,7 +54,8 @@ def _num(v: Any) -> str:
 
 
 def narrative(a: Alert, *, rule: RuleConfig | None, zone: ZoneConfig | None,
-              n_plots: int | None = None, sd_m: float | None = None) -> str:
+              n_plots: int | None = None, sd_m: float | None = None,
+              positions: AlertPositions | None = None) -> str:
     """Plain-language paragraph about one alert (not escaped; plain text).
 
     Built only from the alert's own fields, its rule's parameters and the
@@ -74,6 +93,15 @@ def narrative(a: Alert, *, rule: RuleConfig | None, zone: ZoneConfig | None,
     if rule is not None:
         text += f" (alert threshold {fmt_prob(rule.min_probability)})"
     text += "."
+    if positions is not None:
+        p0, p1, key = positions.start, positions.end, positions.key
+        text += (f" The episode began at {fmt_dm(p0.lat, p0.lon)} and ended at "
+                 f"{fmt_dm(p1.lat, p1.lon)}")
+        if key.label not in ("start", "entry"):
+            text += f"; the {key.label} was at {fmt_dm(key.lat, key.lon)}"
+        elif key.label == "entry" and kind == "pass-through":
+            text += " (entry and exit of the zone)"
+        text += f" (WGS84, each within about {2 * max(p0.sd_m, p1.sd_m, key.sd_m):.0f} m, 2 sigma)."
     if n_plots is not None:
         text += (f" The trajectory was reconstructed after the fact from {n_plots} radar "
                  "plot(s)")
@@ -113,12 +141,27 @@ def _segment(ts: TrajectorySet, tr: Trajectory, t0: float, t1: float) -> np.ndar
     return np.column_stack([lat, lon])
 
 
-def incident_html(inputs: ReportInputs, index: int) -> str:
-    """The complete page of alert ``index`` (0-based, order of ``inputs.alerts``)."""
+@dataclass(frozen=True, kw_only=True, eq=False)
+class _Incident:
+    """What one incident page shows, worked out once."""
+
+    index: int
+    alert: Alert
+    rule: RuleConfig | None
+    zone: ZoneConfig | None
+    trs: tuple[tuple[str, Trajectory], ...]  # ("focus" | "other", trajectory)
+    window: tuple[float, float]
+    ellipses: tuple[tuple[Trajectory, str, float, np.ndarray, float], ...]
+    positions: AlertPositions | None
+    episode: tuple[np.ndarray, ...]  # lat/lon of each trajectory between start and end
+    day: str
+    tz: str | None
+    quoted: tuple[str, ...]  # the user strings the sentences quote (isolated in <bdi>)
+
+
+def _incident(inputs: ReportInputs, index: int) -> _Incident:
     a = inputs.alerts[index]
     ts = inputs.trajectories
-    rule = next((r for r in inputs.rules if r.id == a.rule), None)
-    zone = next((z for z in inputs.zones if z.id == a.zone), None)
     trs: list[tuple[str, Trajectory]] = []
     for role, tid in (("focus", a.track), ("other", a.other_track)):
         if tid:
@@ -126,8 +169,6 @@ def incident_html(inputs: ReportInputs, index: int) -> str:
                 trs.append((role, ts.by_id(tid)))
             except KeyError:
                 pass
-    tracks = [tr for _, tr in trs]
-    w0, w1 = _window(a, tracks)
     ell = []
     for role, tr in trs:
         for lab, t in ellipse_points(a):
@@ -136,17 +177,23 @@ def incident_html(inputs: ReportInputs, index: int) -> str:
             i = state_index(tr, t)
             ring = ellipse_latlon(ts.frame, tr.mean[i], tr.cov[i], k_sigma=ELLIPSE_K_SIGMA)
             ell.append((tr, lab, float(tr.time[i]), ring, float(tr.position_sd[i])))
+    return _Incident(
+        index=index, alert=a,
+        rule=next((r for r in inputs.rules if r.id == a.rule), None),
+        zone=next((z for z in inputs.zones if z.id == a.zone), None),
+        trs=tuple(trs), window=_window(a, [tr for _, tr in trs]), ellipses=tuple(ell),
+        positions=alert_positions(a, ts),
+        episode=tuple(_segment(ts, tr, a.start, a.end) for _, tr in trs),
+        day=fmt_day(a.start), tz=inputs.display_tz, quoted=alert_strings(a, inputs.zones),
+    )
 
-    seg_pts = [_segment(ts, tr, a.start, a.end) for tr in tracks] + [e[3] for e in ell]
-    fallback = [(s.lat_deg, s.lon_deg) for s in inputs.sensors]
-    bounds = map_bounds(seg_pts, fallback)
-    m = new_map(bounds, tile_url=inputs.tile_url, height_px=470)
-    add_zones(m, [z for z in inputs.zones if z.kind_key == "land"], ts.frame)
-    if zone is not None and zone.kind_key != "land":
-        add_zones(m, [zone], ts.frame)
+
+# --------------------------------------------------------------------------- map
+def _add_plots(m: folium.Map, inc: _Incident, inputs: ReportInputs) -> int:
+    """The radar plots used by the trajectories; returns the focus vessel's plot count."""
     plots_fg = folium.FeatureGroup(name="Radar plots").add_to(m)
     n_plots = 0
-    for role, tr in trs:
+    for role, tr in inc.trs:
         pid = tr.plot_ids[tr.plot_ids >= 0] if tr.plot_ids.size else np.zeros(0, np.int64)
         pid = pid[pid < len(inputs.plots)]
         if role == "focus":
@@ -156,68 +203,212 @@ def incident_html(inputs: ReportInputs, index: int) -> str:
             plots_fg.add_child(PointLayer(pts, {
                 "radius": 2, "weight": 1, "color": "#1b1b1b", "fillColor": "#ffffff",
                 "fillOpacity": 1.0, "className": "hw-plot", "interactive": False}))
+    return n_plots
+
+
+def _add_tracks(m: folium.Map, inc: _Incident, ts: TrajectorySet) -> None:
+    """Whole trajectories, the episode drawn over them, start and end marks."""
     tracks_fg = folium.FeatureGroup(name="Trajectories").add_to(m)
-    for role, tr in trs:
+    for role, tr in inc.trs:
         add_track(tracks_fg, tr, track_latlon(ts, tr),
                   role="other" if role == "other" else None,
                   extra_class="hw-focus" if role == "focus" else "hw-other")
-    ell_fg = folium.FeatureGroup(name="2-sigma ellipses").add_to(m)
-    for tr, lab, t, ring, sd in ell:
-        folium.Polygon(
-            locations=round5(ring), color=PALETTE["blue"], weight=1.5, fill=True,
-            fill_color=PALETTE["sky"], fill_opacity=0.25, class_name="hw-ellipse",
+    for (role, _tr), seg in zip(inc.trs, inc.episode, strict=True):
+        folium.PolyLine(
+            locations=round5(seg), color=INK if role == "focus" else PALETTE["purple"],
+            weight=5 if role == "focus" else 4, opacity=0.55, interactive=False,
+            class_name=f"hw-episode hw-episode-{role}",
+        ).add_to(tracks_fg)
+    pos = inc.positions
+    if pos is None:
+        return
+    for p, letter, cls in ((pos.start, "S", "hw-mark-start"), (pos.end, "E", "hw-mark-end")):
+        folium.Marker(
+            location=[round(p.lat, 5), round(p.lon, 5)],
+            icon=folium.DivIcon(html=f'<span class="hw-mark {cls}">{letter}</span>',
+                                icon_size=(20, 20), icon_anchor=(10, 10), class_name="hw-divicon"),
             tooltip=folium.Tooltip(
-                f"{esc_tooltip(tr.id)}: {esc_tooltip(lab)} at {format_clock(t, seconds=True)} "
-                f"UTC<br>2-sigma position ellipse (1-sigma about {sd:.0f} m)"),
-        ).add_to(ell_fg)
-    folium.LayerControl(collapsed=False, position="topright").add_to(m)
-    parts = render_parts(m)
+                f"episode {esc_tooltip(p.label)}, {esc_tooltip(fmt_clock(p.time, tz=inc.tz))}"
+                f"<br>{esc_tooltip(fmt_dm(p.lat, p.lon))}"),
+        ).add_to(tracks_fg)
 
-    # speed chart
+
+def _add_ellipses(m: folium.Map, inc: _Incident) -> None:
+    """2-sigma ellipses to scale, each with a ring of fixed size so a small one is still found."""
+    ell_fg = folium.FeatureGroup(name="2-sigma ellipses").add_to(m)
+    for tr, lab, t, ring, sd in inc.ellipses:
+        tip = folium.Tooltip(
+            f"{tooltip_user(tr.id)}: {esc_tooltip(lab)} at {esc_tooltip(fmt_clock(t, tz=inc.tz))}"
+            f"<br>2-sigma position ellipse ({esc_tooltip(fmt_sd2(sd))})")
+        folium.Polygon(
+            locations=round5(ring), color=PALETTE["blue"], weight=2, fill=True,
+            fill_color=PALETTE["sky"], fill_opacity=0.35, class_name="hw-ellipse", tooltip=tip,
+        ).add_to(ell_fg)
+        centre = ring[:-1].mean(axis=0)
+        folium.CircleMarker(
+            location=[round(float(centre[0]), 5), round(float(centre[1]), 5)], radius=15,
+            color=PALETTE["blue"], weight=1.5, fill=False, dash_array="3 3",
+            class_name="hw-ellipse-ring", interactive=False,
+        ).add_to(ell_fg)
+
+
+def _map(inc: _Incident, inputs: ReportInputs) -> tuple[MapParts, int, list[list[float]]]:
+    """The incident map; its parts, the focus plot count and the episode's bounds."""
+    ts = inputs.trajectories
+    seg_pts = list(inc.episode) + [e[3] for e in inc.ellipses]
+    fallback = [(s.lat_deg, s.lon_deg) for s in inputs.sensors]
+    bounds = map_bounds(seg_pts, fallback)
+    m = new_map(bounds, tile_url=inputs.tile_url, height_px=470)
+    add_zones(m, [z for z in inputs.zones if z.kind_key == "land"], ts.frame)
+    if inc.zone is not None and inc.zone.kind_key != "land":
+        add_zones(m, [inc.zone], ts.frame)
+    n_plots = _add_plots(m, inc, inputs)
+    _add_tracks(m, inc, ts)
+    _add_ellipses(m, inc)
+    folium.LayerControl(collapsed=False, position="topright").add_to(m)
+    return render_parts(m), n_plots, bounds
+
+
+def _legend(inc: _Incident) -> str:
+    """The map's key, naming only what this page draws."""
+    focus = next((tr for role, tr in inc.trs if role == "focus"), None)
+    items = []
+    if focus is not None:
+        status = track_status(focus)
+        st = TRACK_STYLE[status]
+        words = ("still present at the end of the shift" if status == "present" else
+                 "departed before the end of the shift")
+        items.append(_line_key(str(st["color"]), _dash(st["dash_array"]),
+                               f"vessel {focus.id}: smoothed trajectory, {words}"))
+    if any(role == "other" for role, _ in inc.trs):
+        other = next(tr for role, tr in inc.trs if role == "other")
+        st = TRACK_STYLE["other"]
+        items.append(_line_key(str(st["color"]), _dash(st["dash_array"]),
+                               f"the other vessel, {other.id}: smoothed trajectory"))
+    items.append(_line_key(INK, None, "the alert episode (thick underlay)", width=5,
+                           opacity=0.55))
+    items.append('<span class="hw-key"><span class="hw-mark hw-mark-start">S</span>'
+                 '<span class="hw-mark hw-mark-end">E</span>start and end of the episode</span>')
+    items.append('<span class="hw-key"><svg width="14" height="14" aria-hidden="true"><circle '
+                 'cx="7" cy="7" r="2.5" fill="#fff" stroke="#1b1b1b"/></svg>radar plots used by '
+                 "the trajectory</span>")
+    items.append(f'<span class="hw-key"><svg width="22" height="22" aria-hidden="true"><circle '
+                 f'cx="11" cy="11" r="9" fill="none" stroke="{PALETTE["blue"]}" stroke-dasharray="3 3"/>'
+                 f'<ellipse cx="11" cy="11" rx="5" ry="3" fill="{PALETTE["sky"]}" fill-opacity="0.5" '
+                 f'stroke="{PALETTE["blue"]}"/></svg>2-sigma position ellipse, drawn to scale (the '
+                 "dashed ring of fixed size marks where it is when it is too small to see)</span>")
+    if inc.zone is not None:
+        zs = zone_style(inc.zone.kind)
+        dash = f' stroke-dasharray="{zs.dash}"' if zs.dash else ""
+        items.append(
+            f'<span class="hw-key"><svg width="22" height="14" aria-hidden="true"><rect x="1" '
+            f'y="1" width="20" height="12" fill="{zs.fill}" fill-opacity="0.25" '
+            f'stroke="{zs.stroke}" stroke-width="2"{dash}/></svg>zone {esc_user(zone_label(inc.zone))}'
+            "</span>")
+    return f'<div class="hw-legend">{"".join(items)}</div>'
+
+
+def _dash(v: object) -> str | None:
+    return str(v) if v else None
+
+
+def _line_key(colour: str, dash: str | None, text: str, *, width: float = 3,
+              opacity: float = 1.0) -> str:
+    d = f' stroke-dasharray="{dash}"' if dash else ""
+    return (f'<span class="hw-key"><svg width="34" height="10" aria-hidden="true"><line x1="1" '
+            f'y1="5" x2="33" y2="5" stroke="{colour}" stroke-width="{width}" '
+            f'stroke-opacity="{opacity}"{d}/></svg>{esc(text)}</span>')
+
+
+# --------------------------------------------------------------------------- speed chart
+def _speed_chart(inc: _Incident) -> str:
+    w0, w1 = inc.window
     series = []
-    for role, tr in trs:
+    for role, tr in inc.trs:
         sel = (tr.time >= w0) & (tr.time <= w1)
         colour = PALETTE["blue"] if role == "focus" else PALETTE["purple"]
         series.append(charts.Series(tr.time[sel], tr.speed[sel] / KNOT_M_S, colour,
                                     f"speed over ground, {tr.id}",
                                     dash=None if role == "focus" else "5 4"))
     hl = []
+    rule = inc.rule
     if rule is not None and "max_speed_kn" in rule.params:
         hl.append(charts.HLine(float(rule.params["max_speed_kn"]),
                                f"rule limit {_num(rule.params['max_speed_kn'])} kn"))
-    chart = charts.time_chart(
-        series, t0=w0, t1=w1, title=f"Speed over ground, alert {index + 1}", y_label="knots",
-        bands=[charts.Band(a.start, a.end, "alert episode")], hlines=hl,
+    return charts.time_chart(
+        series, t0=w0, t1=w1, title=f"Speed over ground, alert {inc.index + 1}", y_label="knots",
+        bands=[charts.Band(inc.alert.start, inc.alert.end, "alert episode")], hlines=hl,
         caption="Smoothed speed over ground (knots) around the alert; the shaded span is the "
                 "alert episode" + ("; the dashed red line is the rule's speed limit." if hl else "."),
     )
 
-    sd0 = ell[0][4] if ell else None
-    text = narrative(a, rule=rule, zone=zone, n_plots=n_plots if trs else None, sd_m=sd0)
+
+# --------------------------------------------------------------------------- tables
+def _facts(inc: _Incident) -> str:
+    a = inc.alert
     facts = [
         ("rule", f"{a.rule} ({a.kind})"),
         ("trajectory", a.track),
         ("other trajectory", a.other_track),
-        ("zone", zone_label(zone) if zone is not None else a.zone),
-        ("start", format_utc_one(a.start)),
-        ("end", format_utc_one(a.end)),
+        ("zone", zone_label(inc.zone) if inc.zone is not None else a.zone),
+        ("start", fmt_clock(a.start, day=inc.day, tz=inc.tz)),
+        ("end", fmt_clock(a.end, day=inc.day, tz=inc.tz)),
         ("duration", fmt_duration(a.end - a.start)),
         ("probability", fmt_prob(a.probability)),
         ("summary", a.summary),
     ]
-    facts_html = "".join(f"<tr><td>{esc(k)}</td><td>{esc(v)}</td></tr>" for k, v in facts if v)
-    body = (
-        '<p class="hw-nav hw-noprint"><a href="../report.html">\u2190 shift overview</a></p>'
-        f"<h1>Alert {index + 1}: {esc(a.rule)}</h1>"
-        f'<table class="hw-facts">{facts_html}</table>'
-        "<h2>Narrative</h2>"
-        f'<p class="hw-narrative" id="hw-narrative">{esc(text)}</p>'
-        "<h2>Map</h2>"
-        f"{parts.html}"
-        '<p class="hw-sub">Line: smoothed trajectory (dotted purple: the other vessel); white '
-        "dots: the radar plots used by the trajectory; blue ellipses: 2-sigma position "
-        "uncertainty at the marked moments.</p>"
-        "<h2>Speed</h2>"
-        f"{chart}"
+    skip = ' class="hw-print-skip"'
+    rows = "".join(
+        f'<tr{skip if k == "summary" else ""}><th scope="row">{esc(k)}</th>'
+        f"<td>{esc_isolating(v, inc.quoted)}</td></tr>"
+        for k, v in facts if v)
+    return f'<table class="hw-facts">{rows}</table>'
+
+
+def _positions(inc: _Incident) -> str:
+    pos = inc.positions
+    if pos is None:
+        return "<p>No positions: the trajectory is not in this run.</p>"
+    rows = "".join(
+        f'<tr><td>{esc(p.label)}</td><td>{esc_user(p.track) if p.track else "both vessels"}</td>'
+        f'<td class="num">{esc(fmt_clock(p.time, day=inc.day, tz=inc.tz))}</td>'
+        f'<td class="num hw-pos">{esc(fmt_dm(p.lat, p.lon))}</td>'
+        f'<td class="num">{esc(fmt_sd2(p.sd_m))}</td></tr>'
+        for p in pos.points
     )
-    return document(title=f"Alert {index + 1}: {a.rule}", body=body, parts=parts)
+    return (
+        '<div class="hw-scroll"><table class="hw-positions" id="hw-positions"><thead><tr>'
+        '<th scope="col">event</th><th scope="col">trajectory</th><th scope="col">time</th>'
+        '<th scope="col">position (WGS84)</th><th scope="col">uncertainty</th></tr></thead>'
+        f"<tbody>{rows}</tbody></table></div>"
+    )
+
+
+def incident_html(inputs: ReportInputs, index: int) -> str:
+    """The complete page of alert ``index`` (0-based, order of ``inputs.alerts``)."""
+    inc = _incident(inputs, index)
+    a = inc.alert
+    parts, n_plots, bounds = _map(inc, inputs)
+    sd0 = inc.ellipses[0][4] if inc.ellipses else None
+    text = narrative(a, rule=inc.rule, zone=inc.zone, n_plots=n_plots if inc.trs else None,
+                     sd_m=sd0, positions=inc.positions)
+    body = (
+        '<p class="hw-nav hw-noprint"><a href="../report.html">\u2190 shift overview</a> \u00b7 '
+        '<a href="../report.html#how-to-read">how to read this report</a></p>'
+        f"<h1>Alert {index + 1}: {esc_user(a.rule)} <span class=\"hw-day\">{esc(inc.day)} "
+        "(times UTC)</span></h1>"
+        '<div class="hw-incident-top">'
+        f'<section><h2>Facts</h2><div class="hw-scroll">{_facts(inc)}</div></section>'
+        f"<section><h2>Positions</h2>{_positions(inc)}</section></div>"
+        "<h2>Narrative</h2>"
+        f'<p class="hw-narrative" id="hw-narrative">{esc_isolating(text, inc.quoted)}</p>'
+        '<section class="hw-map-block"><h2>Map</h2>'
+        f"{parts.html}{_legend(inc)}</section>"
+        '<section class="hw-chart-block"><h2>Speed</h2>'
+        f"{_speed_chart(inc)}</section>"
+    )
+    episode = [round5(seg) for seg in inc.episode]
+    page = {"map": parts.name, "fit": round5(bounds), "episode": episode}
+    return document(title=f"Alert {index + 1}: {a.rule}", body=body, parts=parts,
+                    scripts=("mapmarks.js",), data_blocks={"hw-page-data": script_json(page)},
+                    page_class="hw-incident")

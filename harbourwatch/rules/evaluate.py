@@ -38,12 +38,9 @@ SHA-256 hashes of the ids, so results do not depend on evaluation order.
 
 from __future__ import annotations
 
-import csv
 import hashlib
-import os
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
-from pathlib import Path
 from types import MappingProxyType
 from typing import Any
 
@@ -51,9 +48,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from harbourwatch.errors import ParameterError
-from harbourwatch.io.atomic import atomic_open
 from harbourwatch.io.records import RuleConfig, ZoneConfig
-from harbourwatch.io.timefmt import format_clock, format_utc
 from harbourwatch.models.gaussian import backward_sample
 from harbourwatch.rules.kinds import (
     GAP_TOLERANCE_S,
@@ -67,6 +62,7 @@ from harbourwatch.rules.kinds import (
     position_sd_bound,
     register_kind,
 )
+from harbourwatch.rules.output import ALERT_COLUMNS, alerts_table, write_alerts_csv
 from harbourwatch.scene.zones import LocalZone, local_zones
 from harbourwatch.trajectories import Trajectory, TrajectorySet
 
@@ -96,10 +92,6 @@ DEFAULT_SAMPLES = 200
 WINDOW_PAD_S = 60.0
 #: Time bin of the rendezvous pair search, seconds.
 PAIR_BIN_S = 300.0
-#: Columns of ``alerts.csv``, in order (the file contract).
-ALERT_COLUMNS = (
-    "rule", "kind", "track", "other_track", "zone", "start", "end", "probability", "summary",
-)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -378,6 +370,7 @@ def evaluate_rules(
     *,
     seed: int = 0,
     n_samples: int = DEFAULT_SAMPLES,
+    progress: Callable[[int, int], None] = lambda done, total: None,
 ) -> list[Alert]:
     """Every alert of every rule over the whole trajectory set.
 
@@ -391,6 +384,8 @@ def evaluate_rules(
         Run seed of the Monte-Carlo draws (same seed, same alerts).
     n_samples
         Joint draws per candidate window.
+    progress
+        Called as ``progress(rules_done, rules_total)`` after each rule.
 
     Returns
     -------
@@ -406,7 +401,8 @@ def evaluate_rules(
         local = local_zones([z for z in zones if z.id in used], trajectories.frame)
     trajs = sorted(trajectories.trajectories, key=lambda tr: tr.id)
     alerts: list[Alert] = []
-    for rule in rules:
+    for k, rule in enumerate(rules):
+        progress(k, len(rules))
         kind = RULE_KINDS[rule.kind](rule, local.get(rule.zone) if rule.zone else None)
         if kind.pairwise:
             for (i, j), bins in _pair_prefilter(kind, trajs).items():
@@ -414,44 +410,6 @@ def evaluate_rules(
         else:
             for tr in trajs:
                 alerts += _evaluate_single(kind, tr, seed, n_samples)
+    progress(len(rules), len(rules))
     alerts.sort(key=lambda al: (al.start, al.rule, al.track, al.other_track))
     return alerts
-
-
-# --------------------------------------------------------------------------- output
-def write_alerts_csv(alerts: Sequence[Alert], path: str | os.PathLike[str]) -> None:
-    """Write ``alerts.csv`` (contract columns, ISO UTC times, 3-decimal probabilities).
-
-    Written to a temporary file in the same folder, then moved into place.
-    """
-    path = Path(path)
-    starts: list[str] = [str(x) for x in format_utc([a.start for a in alerts])] if alerts else []
-    ends: list[str] = [str(x) for x in format_utc([a.end for a in alerts])] if alerts else []
-    with atomic_open(path, "w", newline="", encoding="utf-8") as fh:
-        w = csv.writer(fh, lineterminator="\n")
-        w.writerow(ALERT_COLUMNS)
-        for a, s, e in zip(alerts, starts, ends, strict=True):
-            w.writerow([a.rule, a.kind, a.track, a.other_track, a.zone, str(s), str(e),
-                        f"{a.probability:.3f}", a.summary])
-
-
-def alerts_table(alerts: Sequence[Alert]) -> str:
-    """The plain-text table printed at the end of a run (one row per alert)."""
-    if not alerts:
-        return "no alerts raised"
-    head = ("start", "end", "rule", "kind", "track", "zone", "prob.")
-    rows = [
-        (format_clock(a.start, seconds=True), format_clock(a.end, seconds=True), a.rule, a.kind,
-         a.track + (f"+{a.other_track}" if a.other_track else ""), a.zone or "-",
-         f"{a.probability:.3f}")
-        for a in alerts
-    ]
-    widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
-
-    def line(cells: Sequence[str]) -> str:
-        return "  ".join(c.ljust(w) for c, w in zip(cells, widths, strict=True)).rstrip()
-
-    out = [line(head), line(["-" * w for w in widths])]
-    out += [line(r) for r in rows]
-    out.append(f"{len(alerts)} alert{'s' if len(alerts) != 1 else ''} raised (times UTC)")
-    return "\n".join(out)

@@ -21,6 +21,8 @@ from harbourwatch.io.feeds import PlotTable, Scan
 from harbourwatch.io.inputs import RunInputs
 from harbourwatch.io.records import FilterSettings, SensorConfig
 from harbourwatch.models.cv import converted_covariance
+from harbourwatch.scene.checks import input_warnings
+from harbourwatch.scene.extent import Covers, check_frame_extent
 from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.scene.records import BirthRegion, MeasurementScan, SensorModel
 from harbourwatch.scene.zones import LocalZone, local_zones
@@ -51,6 +53,8 @@ class LocalScene:
     birth_regions
         Polygons with extra arrivals for the filter (zones of kind ``entrance``
         when ``FilterSettings.entrance_arrivals_per_hour`` is positive).
+    warnings
+        One line per implausible input found on the way (see :mod:`.checks`).
     """
 
     frame: LocalFrame
@@ -59,6 +63,7 @@ class LocalScene:
     plot_xy: NDArray[np.float64]
     zones: Mapping[str, LocalZone]
     birth_regions: tuple[BirthRegion, ...]
+    warnings: tuple[str, ...] = ()
 
 
 def sensor_models(sensors: Sequence[SensorConfig], frame: LocalFrame) -> list[SensorModel]:
@@ -121,7 +126,7 @@ def _birth_regions(zones: Mapping[str, LocalZone], per_hour: float) -> tuple[Bir
     return tuple(
         BirthRegion(polygon=z.polygon, arrivals_per_hour=per_hour)
         for z in zones.values()
-        if z.kind_key == ENTRANCE_KIND
+        if z.kind_key == ENTRANCE_KIND and not z.is_empty
     )
 
 
@@ -150,7 +155,10 @@ def into_local_frame(inputs: RunInputs, settings: FilterSettings | None = None) 
                               [s.lon_deg for s in inputs.sensors])
     models = sensor_models(inputs.sensors, frame)
     scans, xy = measurement_scans(inputs.plots, inputs.scans, models, inputs.sensors, frame)
-    zones = local_zones(inputs.zones, frame)
+    check_frame_extent(inputs.plots, inputs.sensors, frame, xy[:, 0], xy[:, 1],
+                       sensors_path=inputs.sensors_path or None)
+    warnings = input_warnings(inputs.plots, inputs.sensors, models, xy)
+    zones = local_zones(inputs.zones, frame, Covers.of(inputs.sensors, frame), warnings)
     return LocalScene(
         frame=frame,
         sensors=tuple(models),
@@ -158,5 +166,6 @@ def into_local_frame(inputs: RunInputs, settings: FilterSettings | None = None) 
         plot_xy=xy,
         zones=zones,
         birth_regions=_birth_regions(zones, settings.entrance_arrivals_per_hour),
+        warnings=tuple(warnings),
     )
 

@@ -113,5 +113,13 @@ class LocalFrame:
         e2, n2 = self.to_local(lat + step / 111_000.0, lon)
         return np.arctan2(e2 - e, n2 - n) * -1.0
 
+    @staticmethod
+    def geodesic_m(lat1_deg: ArrayLike, lon1_deg: ArrayLike, lat2_deg: ArrayLike,
+                   lon2_deg: ArrayLike) -> NDArray[np.float64]:
+        """Geodesic distance on the WGS84 ellipsoid between point pairs, metres (vectorised)."""
+        _, _, d = WGS84_GEOD.inv(np.asarray(lon1_deg, float), np.asarray(lat1_deg, float),
+                                 np.asarray(lon2_deg, float), np.asarray(lat2_deg, float))
+        return np.atleast_1d(np.asarray(d, float))
+
     def __repr__(self) -> str:
         return f"LocalFrame(lat0_deg={self.lat0_deg:.6f}, lon0_deg={self.lon0_deg:.6f})"

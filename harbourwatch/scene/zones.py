@@ -19,6 +19,12 @@ from numpy.typing import ArrayLike, NDArray
 from shapely.geometry.base import BaseGeometry
 
 from harbourwatch.io.records import ZoneConfig
+from harbourwatch.scene.extent import (
+    SIMPLIFY_ABOVE_VERTICES,
+    SIMPLIFY_M,
+    Covers,
+    zone_outside_covers,
+)
 from harbourwatch.scene.geodesy import LocalFrame
 
 __all__ = ["LocalZone", "local_zones", "DENSIFY_M"]
@@ -55,17 +61,36 @@ class LocalZone:
         return self.kind.strip().lower()
 
     @classmethod
-    def from_config(cls, zone: ZoneConfig, frame: LocalFrame) -> LocalZone:
-        """Move ``zone`` into ``frame``: densify in degrees, transform every ring at once."""
-        dense = shapely.segmentize(zone.geometry, DENSIFY_M / _M_PER_DEG)
+    def from_config(cls, zone: ZoneConfig, frame: LocalFrame,
+                    covers: Covers | None = None) -> LocalZone:
+        """Move ``zone`` into ``frame``: densify in degrees, transform every ring at once.
+
+        With ``covers``, only the part of the zone near the covers is moved
+        (see :mod:`.extent`); the polygon is empty when no part is near.
+        """
+        geom = zone.geometry if covers is None else covers.clip_lonlat(zone.geometry)
+        if geom.is_empty:
+            return cls(id=zone.id, name=zone.name or zone.id, kind=zone.kind,
+                       polygon=shapely.Polygon())
+        dense = shapely.segmentize(geom, DENSIFY_M / _M_PER_DEG)
 
         def to_local(lonlat: NDArray[np.float64]) -> NDArray[np.float64]:
             e, n = frame.to_local(lonlat[:, 1], lonlat[:, 0])
             return np.column_stack([e, n])
 
         poly = shapely.make_valid(shapely.transform(dense, to_local))
+        if covers is not None and not covers.discs.contains(poly):
+            poly = _polygonal(shapely.intersection(poly, covers.discs))
+        if shapely.get_num_coordinates(poly) > SIMPLIFY_ABOVE_VERTICES:
+            poly = _polygonal(shapely.make_valid(
+                shapely.simplify(poly, SIMPLIFY_M, preserve_topology=True)))
         shapely.prepare(poly)
         return cls(id=zone.id, name=zone.name or zone.id, kind=zone.kind, polygon=poly)
+
+    @property
+    def is_empty(self) -> bool:
+        """No part of the zone lies near any cover (see :mod:`.extent`)."""
+        return bool(self.polygon.is_empty)
 
     @property
     def bounds(self) -> tuple[float, float, float, float]:
@@ -131,6 +156,30 @@ class LocalZone:
         )
 
 
-def local_zones(zones: Iterable[ZoneConfig], frame: LocalFrame) -> dict[str, LocalZone]:
-    """All zones in the local frame, keyed by id."""
-    return {z.id: LocalZone.from_config(z, frame) for z in zones}
+def _polygonal(geom: BaseGeometry) -> BaseGeometry:
+    """The polygons of ``geom`` (an intersection may add lines and points where edges touch)."""
+    if geom.geom_type in ("Polygon", "MultiPolygon"):
+        return geom
+    polys = [g for g in shapely.get_parts(geom) if g.geom_type in ("Polygon", "MultiPolygon")]
+    if not polys:
+        return shapely.Polygon()
+    return shapely.union_all(polys)
+
+
+def local_zones(zones: Iterable[ZoneConfig], frame: LocalFrame, covers: Covers | None = None,
+                warnings: list[str] | None = None) -> dict[str, LocalZone]:
+    """All zones in the local frame, keyed by id.
+
+    With ``covers``, zones are cut to the covers first; a zone with no part
+    near any cover adds a line to ``warnings`` (or is refused beyond the
+    frame's bound, see :func:`~harbourwatch.scene.extent.zone_outside_covers`).
+    """
+    out = {}
+    for z in zones:
+        local = LocalZone.from_config(z, frame, covers)
+        if covers is not None and local.is_empty:
+            note = zone_outside_covers(z, covers, frame)
+            if warnings is not None:
+                warnings.append(note)
+        out[z.id] = local
+    return out

@@ -8,6 +8,7 @@ them on a grid and computes the figures of ``harbourwatch score``.
 
 from __future__ import annotations
 
-from harbourwatch.scoring.score import ScoreReport, mean_gospa_files, score_files, write_score_plot
+from harbourwatch.scoring.plot import write_score_plot
+from harbourwatch.scoring.score import ScoreReport, mean_gospa_files, score_files
 
 __all__ = ["ScoreReport", "mean_gospa_files", "score_files", "write_score_plot"]

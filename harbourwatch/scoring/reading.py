@@ -7,7 +7,6 @@ numbers, validated once here (file, line and field in every error).
 from __future__ import annotations
 
 import csv
-import gzip
 import io
 import math
 import re
@@ -19,6 +18,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from harbourwatch.errors import InputError
+from harbourwatch.io.text import FEED_MAX_BYTES, read_input
 
 __all__ = ["ScoreTable", "read_score_csv", "group_by_track"]
 
@@ -39,12 +39,11 @@ class ScoreTable:
 
 
 def _open_text(path: str) -> io.TextIOBase:
-    try:
-        if path.endswith(".gz"):
-            return io.TextIOWrapper(gzip.open(path, "rb"), encoding="utf-8-sig", newline="")
-        return open(path, encoding="utf-8-sig", newline="")  # noqa: SIM115
-    except OSError as exc:
-        raise InputError(f"cannot read the file: {exc.strerror or exc}", file=path) from exc
+    """The file as text, read once and bounded (gzip by its magic bytes), see ``read_input``."""
+    got = read_input(path, limit=FEED_MAX_BYTES, formats="feed")
+    if got.kind == "parquet":
+        raise InputError("expected a CSV file (or .csv.gz), found Parquet", file=path)
+    return io.StringIO(got.data.decode("utf-8-sig"), newline="")
 
 
 def _parse_time(text: str, *, epoch: bool, path: str, line: int) -> float:

@@ -1,16 +1,23 @@
-/* harbourwatch shift replay: slider, play/pause, speed, hindsight/as-seen switch.
-   Data: the JSON block with id "hw-replay-data", see report/_data.py. */
+/* harbourwatch shift replay: slider, play/pause, speed, trail length, hindsight/as-seen switch,
+   and "only what had happened by then". Data: the JSON block with id "hw-replay-data", see
+   report/_data.py. The vessel symbol is our own: a dot for the position and a small "bow"
+   dot ahead of it in the direction of travel. */
 (function () {
   "use strict";
   var el = document.getElementById("hw-replay-data");
   if (!el) { return; }
   var cfg = JSON.parse(el.textContent);
   var map = window[cfg.map];
+  var mapEl = map.getContainer();
   var slider = document.getElementById("hw-slider");
   var clock = document.getElementById("hw-clock");
   var playBtn = document.getElementById("hw-play");
   var speedSel = document.getElementById("hw-speed");
+  var trailSel = document.getElementById("hw-trail");
+  var uptoBox = document.getElementById("hw-upto");
   var span = cfg.t1 - cfg.t0;
+  var KNOT = 1852.0 / 3600.0;  // metres per second in one knot
+  var BOW_PX = 11;
 
   function decode(tr) {
     var p = tr.p, n = p.length / 3, t = new Float64Array(n), la = new Float64Array(n),
@@ -26,33 +33,64 @@
     hindsight: { radius: 5, color: "#1b1b1b", weight: 1.5, fillColor: "#0072B2", fillOpacity: 1 },
     as_seen: { radius: 5, color: "#009E73", weight: 2.5, fillColor: "#ffffff", fillOpacity: 1 }
   };
+  var bowStyle = {
+    hindsight: { radius: 2.5, color: "#1b1b1b", weight: 1, fillColor: "#1b1b1b", fillOpacity: 1 },
+    as_seen: { radius: 2.5, color: "#009E73", weight: 1, fillColor: "#009E73", fillOpacity: 1 }
+  };
   var trailStyle = {
     hindsight: { color: "#1b1b1b", weight: 2, opacity: 0.8 },
     as_seen: { color: "#009E73", weight: 2, opacity: 0.9, dashArray: "3 4" }
   };
+  var histStyle = {
+    hindsight: { color: "#0072B2", weight: 2, opacity: 0.75 },
+    as_seen: { color: "#009E73", weight: 1.5, opacity: 0.7 }
+  };
   var layer = L.layerGroup().addTo(map);
+  var alertLayer = L.layerGroup().addTo(map);
   var mode = "hindsight", entries = [];
 
-  function label(id) {
-    var s = document.createElement("span");
-    s.className = "hw-tip-id";
-    s.textContent = id;
-    return s;
+  function copy(o, extra) {
+    var r = {}, k;
+    for (k in o) { r[k] = o[k]; }
+    for (k in extra) { r[k] = extra[k]; }
+    return r;
+  }
+  function dm(v, width, hemis) {
+    var th = Math.round(Math.abs(v) * 60000), deg = Math.floor(th / 60000), mm = th - deg * 60000;
+    var d = String(deg); while (d.length < width) { d = "0" + d; }
+    var m = (mm / 1000).toFixed(3); if (mm < 10000) { m = "0" + m; }
+    return d + "\u00b0" + m + "'" + (v >= 0 ? hemis[0] : hemis[1]);
+  }
+  function tipFor(e) {
+    var box = document.createElement("span"), id = document.createElement("span");
+    id.className = "hw-tip-id";
+    id.textContent = e.tr.id;
+    box.appendChild(id);
+    var lines = [];
+    if (e.pos) {
+      if (e.vel) {
+        var c = String(Math.round(e.vel.course) % 360); while (c.length < 3) { c = "0" + c; }
+        lines.push(e.vel.kn.toFixed(1) + " kn, course " + c + "\u00b0");
+      }
+      lines.push(dm(e.pos[0], 2, "NS") + " " + dm(e.pos[1], 3, "EW"));
+      lines.push(fmt(cur));
+    }
+    lines.forEach(function (t) { box.appendChild(document.createElement("br")); box.appendChild(document.createTextNode(t)); });
+    return box;
   }
   function build() {
     layer.clearLayers();
     entries = sets[mode].map(function (tr) {
-      var o = {}, k;
-      for (k in styles[mode]) { o[k] = styles[mode][k]; }
-      o.className = "hw-vessel";
-      var mk = L.circleMarker([tr.la[0], tr.lo[0]], o);
-      mk.bindTooltip(label(tr.id));
-      var to = {};
-      for (k in trailStyle[mode]) { to[k] = trailStyle[mode][k]; }
-      to.className = "hw-trail";
-      to.interactive = false;
-      var trail = L.polyline([], to);
-      return { tr: tr, mk: mk, trail: trail, on: false };
+      var e = { tr: tr, on: false, histOn: false, histI: -2, pos: null, vel: null };
+      e.mk = L.circleMarker([tr.la[0], tr.lo[0]], copy(styles[mode], { className: "hw-vessel" }));
+      e.bow = L.circleMarker([tr.la[0], tr.lo[0]],
+        copy(bowStyle[mode], { className: "hw-bow", interactive: false }));
+      e.mk.bindTooltip(function () { return tipFor(e); });
+      e.trail = L.polyline([], copy(trailStyle[mode], { className: "hw-trail", interactive: false }));
+      var hs = histStyle[mode];
+      if (mode === "hindsight" && !tr.live) { hs = copy(hs, { color: "#E69F00", dashArray: "7 5" }); }
+      e.hist = L.polyline([], copy(hs, { className: "hw-hist", interactive: false }));
+      return e;
     });
   }
   function lastAtOrBefore(t, s) {
@@ -78,9 +116,33 @@
     if (s - tr.t[i] > cfg.max_gap) { return null; }
     return [tr.la[i], tr.lo[i]];
   }
-  function trail(tr, s, here) {
+  function velocity(tr, s) {
+    // over about 30 s: positions are rounded to 1e-5 degrees (about 1 m)
+    var i = lastAtOrBefore(tr.t, s), n = tr.t.length, a, b;
+    if (mode === "hindsight") {
+      a = Math.max(0, lastAtOrBefore(tr.t, s - 15));
+      b = Math.min(n - 1, Math.max(lastAtOrBefore(tr.t, s + 15), a + 1));
+    } else { b = i; a = Math.max(0, Math.min(i - 1, lastAtOrBefore(tr.t, s - 30))); }
+    if (a < 0 || b >= n || tr.t[b] <= tr.t[a]) { return null; }
+    var dt = tr.t[b] - tr.t[a];
+    var d = map.distance([tr.la[a], tr.lo[a]], [tr.la[b], tr.lo[b]]);
+    var dn = tr.la[b] - tr.la[a], de = (tr.lo[b] - tr.lo[a]) * Math.cos(tr.la[a] * Math.PI / 180);
+    var course = (Math.atan2(de, dn) * 180 / Math.PI + 360) % 360;
+    return { kn: d / dt / KNOT, course: course };
+  }
+  function segmentsUpTo(tr, i, tail) {  // samples 0..i (+ tail), split at as-seen gaps
+    var segs = [], seg = [];
+    for (var j = 0; j <= i; j++) {
+      if (j > 0 && mode === "as_seen" && tr.t[j] - tr.t[j - 1] > cfg.max_gap) { segs.push(seg); seg = []; }
+      seg.push([tr.la[j], tr.lo[j]]);
+    }
+    if (tail) { seg.push(tail); }
+    segs.push(seg);
+    return segs;
+  }
+  function trail(tr, s, here, len) {
     var i = lastAtOrBefore(tr.t, s), segs = [], seg = [here];
-    for (var j = i; j >= 0 && tr.t[j] >= s - cfg.trail; j--) {
+    for (var j = i; j >= 0 && tr.t[j] >= s - len; j--) {
       if (j < i && tr.t[j + 1] - tr.t[j] > cfg.max_gap && mode === "as_seen") {
         segs.push(seg); seg = [];
       }
@@ -89,25 +151,72 @@
     segs.push(seg);
     return segs;
   }
-  function fmt(s) {
-    var d = new Date((cfg.t0 + s) * 1000);
-    return d.toISOString().slice(0, 19).replace("T", " ") + " UTC";
+  function bowAt(p, vel) {
+    if (!vel) { return p; }
+    var c = vel.course * Math.PI / 180, pt = map.latLngToLayerPoint(p);
+    var ll = map.layerPointToLatLng([pt.x + BOW_PX * Math.sin(c), pt.y - BOW_PX * Math.cos(c)]);
+    return [ll.lat, ll.lng];
   }
-  var cur = parseFloat(slider.value);
+  var local = null;
+  if (cfg.tz && window.Intl) {
+    try {
+      local = new Intl.DateTimeFormat("en-GB", { timeZone: cfg.tz, hour: "2-digit",
+        minute: "2-digit", second: "2-digit", hourCycle: "h23", timeZoneName: "short" });
+    } catch (err) { local = null; }
+  }
+  /* HH:MM:SS UTC (the date is in the page heading), local time in brackets with --display-tz */
+  function fmt(s) {
+    var d = new Date(Math.floor(cfg.t0 + s) * 1000);
+    var text = d.toISOString().slice(11, 19) + " UTC";
+    var day = d.toISOString().slice(0, 10);
+    if (day !== cfg.day) { text = day + " " + text; }
+    if (local) { text += " (" + local.format(d) + ")"; }
+    return text;
+  }
+  var alertMarks = (cfg.alerts || []).map(function (a) {
+    var mk = L.circleMarker([a.lat, a.lon], { radius: 7, color: "#1b1b1b", weight: 1.5,
+      fillColor: "#D55E00", fillOpacity: 0.95, className: "hw-alert-live" });
+    var box = document.createElement("span"), b = document.createElement("b"),
+      link = document.createElement("a");
+    b.textContent = a.rule;
+    link.href = a.href;
+    link.textContent = "open incident page " + a.n;
+    box.appendChild(b); box.appendChild(document.createElement("br")); box.appendChild(link);
+    mk.bindPopup(box);
+    return { a: a, mk: mk, on: false };
+  });
+  var cur = span;
+  slider.value = span;
   function update() {
-    var s = cur;
+    var s = cur, upto = !uptoBox || uptoBox.checked;
+    var len = trailSel ? parseFloat(trailSel.value) : cfg.trail;
     clock.textContent = fmt(s);
+    mapEl.classList.toggle("hw-upto", upto);
     var shown = 0;
     entries.forEach(function (e) {
+      var i = lastAtOrBefore(e.tr.t, s);
+      if (upto && i >= 0) {
+        if (e.histI !== i) { e.hist.setLatLngs(segmentsUpTo(e.tr, i, null)); e.histI = i; }
+        if (!e.histOn) { layer.addLayer(e.hist); e.histOn = true; }
+      } else if (e.histOn) { layer.removeLayer(e.hist); e.histOn = false; e.histI = -2; }
       var p = position(e.tr, s);
+      e.pos = p;
       if (p === null) {
-        if (e.on) { layer.removeLayer(e.mk); layer.removeLayer(e.trail); e.on = false; }
+        if (e.on) { layer.removeLayer(e.mk); layer.removeLayer(e.bow); layer.removeLayer(e.trail); e.on = false; }
         return;
       }
+      e.vel = velocity(e.tr, s);
       e.mk.setLatLng(p);
-      e.trail.setLatLngs(trail(e.tr, s, p));
-      if (!e.on) { layer.addLayer(e.trail); layer.addLayer(e.mk); e.on = true; }
+      e.bow.setLatLng(bowAt(p, e.vel));
+      e.trail.setLatLngs(len > 0 ? trail(e.tr, s, p, len) : []);
+      if (!e.on) { layer.addLayer(e.trail); layer.addLayer(e.bow); layer.addLayer(e.mk); e.on = true; }
+      if (e.mk.isTooltipOpen()) { e.mk.setTooltipContent(tipFor(e)); }
       shown += 1;
+    });
+    alertMarks.forEach(function (m) {
+      var want = upto && m.a.s <= s;
+      if (want && !m.on) { alertLayer.addLayer(m.mk); m.on = true; }
+      if (!want && m.on) { alertLayer.removeLayer(m.mk); m.on = false; }
     });
     slider.setAttribute("aria-valuetext", fmt(s) + ", " + shown + " vessels");
   }
@@ -136,6 +245,9 @@
   }
   playBtn.addEventListener("click", function () { setPlaying(!playing); });
   slider.addEventListener("input", function () { cur = parseFloat(slider.value); update(); });
+  if (trailSel) { trailSel.addEventListener("change", update); }
+  if (uptoBox) { uptoBox.addEventListener("change", update); }
+  map.on("zoomend", update);
   document.querySelectorAll("input[name=hw-mode]").forEach(function (r) {
     r.addEventListener("change", function () {
       if (r.checked) { mode = r.value; build(); update(); }
@@ -148,6 +260,40 @@
       return entries.filter(function (e) { return e.on; }).map(function (e) {
         var p = e.mk.getLatLng(); return [e.tr.id, p.lat, p.lng];
       });
+    },
+    /* [id, [[lat, lon], ...]] of every history line drawn now */
+    drawn: function () {
+      return entries.filter(function (e) { return e.histOn; }).map(function (e) {
+        var flat = [];
+        (function walk(a) { a.forEach(function (x) { if (x.lat !== undefined) { flat.push([x.lat, x.lng]); } else { walk(x); } }); })(e.hist.getLatLngs());
+        return [e.tr.id, flat];
+      });
+    },
+    time: function () { return cur; },
+    /* the tooltip text of vessel id at the current time ("" when it is not shown) */
+    tip: function (id) {
+      var t = "";
+      entries.forEach(function (e) {
+        if (e.tr.id === id && e.on) {
+          t = Array.prototype.filter.call(tipFor(e).childNodes, function (c) { return c.nodeName !== "BR"; })
+            .map(function (c) { return c.textContent; }).join("\n");
+        }
+      });
+      return t;
+    },
+    goTo: function (s, id) {
+      setPlaying(false);
+      cur = Math.max(0, Math.min(span, s));
+      slider.value = cur;
+      update();
+      var tr = null;
+      sets.hindsight.forEach(function (x) { if (x.id === id) { tr = x; } });
+      if (tr && tr.t.length) {
+        var pts = [];
+        for (var j = 0; j < tr.t.length; j++) { pts.push([tr.la[j], tr.lo[j]]); }
+        map.fitBounds(L.latLngBounds(pts), { animate: false, maxZoom: 15, padding: [20, 20] });
+      }
+      entries.forEach(function (e) { if (e.tr.id === id && e.on) { e.mk.openTooltip(); } });
     }
   };
 })();
