@@ -123,10 +123,11 @@ def fuzz() -> None:
 
 def main() -> None:
     OUT.mkdir(parents=True, exist_ok=True)
-    from bench import accuracy, bench_score, campaign
+    from bench import accuracy, bench_score, campaign, large_vessels
 
     accuracy.main()
     bench_score.main()
+    large_vessels.main()
     throughput()
     campaign.main()
     fuzz()

@@ -66,6 +66,11 @@ class Trajectory:
         each state, ``-1`` for a missed detection.
     sensor_ids
         ``(T,)`` sensor index of the scan behind each state.
+    extent
+        Plot rate and hull extent of an extended vessel at its last state,
+        ``(α, β, v, V00, V01, V11)``: rate ``Gam(α, β)``, extent
+        ``scipy.stats.invwishart(df=v, scale=V)`` (mean ``V / (v - 3)``);
+        ``None`` for a point-like vessel. See :attr:`size`.
     """
 
     id: str
@@ -81,6 +86,24 @@ class Trajectory:
     alive_at_end: bool = False
     plot_ids: NDArray[np.int64] = field(default_factory=lambda: np.zeros(0, np.int64))
     sensor_ids: NDArray[np.int64] = field(default_factory=lambda: np.zeros(0, np.int64))
+    extent: tuple[float, ...] | None = None
+
+    @property
+    def size(self) -> tuple[float, float, float, float] | None:
+        """``(length_m, beam_m, heading_deg, plots_per_scan)``, or None for a point-like vessel.
+
+        For a uniform ellipse of shape ``X`` the semi-axes are the square
+        roots of ``X``'s eigenvalues: length ``2 sqrt(λ_max(E[X]))``, beam
+        ``2 sqrt(λ_min(E[X]))``; heading is the main axis' direction (degrees
+        true, 0-180); the plot rate is the gamma mean ``α / β``.
+        """
+        if self.extent is None:
+            return None
+        from harbourwatch.models.extent import hull_size
+
+        a, b, v, v00, v01, v11 = self.extent
+        length, beam, heading = hull_size(v, np.array([[v00, v01], [v01, v11]]))
+        return length, beam, heading, a / b
 
     @property
     def start(self) -> float:
@@ -134,6 +157,7 @@ class AsSeenTable:
     mean: Array  # (N, 4)
     sd: Array  # (N,) position sd, m
     existence: Array  # (N,)
+    length: Array | None = None  # (N,) hull length as known then, m (NaN: point-like); optional
 
     @classmethod
     def empty(cls) -> AsSeenTable:
@@ -178,6 +202,7 @@ class TrajectorySet:
 
 
 TRACK_COLUMNS = ("track", "time", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "existence")
+SIZE_COLUMNS = ("length_m", "beam_m", "heading_deg", "plots_per_scan")
 AS_SEEN_COLUMNS = ("time", "track", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "existence")
 
 
@@ -239,7 +264,19 @@ def tracks_csv_text(tset: TrajectorySet) -> str:
         np.concatenate([t.position_sd for t in ts]),
         np.concatenate([np.full(t.time.size, t.existence) for t in ts]),
     ]
-    return _csv_text(TRACK_COLUMNS, columns, [None, None, 7, 7, 2, 1, 1, 4])
+    header: tuple[str, ...] = TRACK_COLUMNS
+    decimals: list[int | None] = [None, None, 7, 7, 2, 1, 1, 4]
+    if any(t.extent is not None for t in ts):  # optional size columns (README)
+        sizes = [t.size for t in ts]
+        for k, (_name, fmt) in enumerate(zip(SIZE_COLUMNS, ("%.1f", "%.1f", "%.1f", "%.2f"),
+                                            strict=True)):
+            text = []
+            for t, sz in zip(ts, sizes, strict=True):
+                text.extend([fmt % sz[k] if sz is not None else ""] * t.time.size)
+            columns.append(text)
+        header = header + SIZE_COLUMNS
+        decimals = decimals + [None] * len(SIZE_COLUMNS)
+    return _csv_text(header, columns, decimals)
 
 
 def as_seen_csv_text(tset: TrajectorySet) -> str:
@@ -251,6 +288,12 @@ def as_seen_csv_text(tset: TrajectorySet) -> str:
         return ",".join(AS_SEEN_COLUMNS) + "\n"
     lat, lon, sog, cog = _sog_cog(tset.frame, a.mean)
     columns = [format_utc_list(a.time), a.track, lat, lon, sog, cog, a.sd, a.existence]
+    if a.length is not None and np.isfinite(a.length).any():  # optional, as in tracks.csv
+        text = np.char.mod("%.1f", a.length).astype(object)
+        text[~np.isfinite(a.length)] = ""
+        columns.append(text.tolist())
+        return _csv_text(AS_SEEN_COLUMNS + ("length_m",), columns,
+                         [None, None, 7, 7, 2, 1, 1, 4, None])
     return _csv_text(AS_SEEN_COLUMNS, columns, [None, None, 7, 7, 2, 1, 1, 4])
 
 

@@ -140,6 +140,7 @@ def test_one_scan_hypothesis_weights_match_enumeration():
         initial_vessels=40.0,
         birth_speed_sd_m_s=3.0,
         manoeuvre_accel_psd_m2_s3=None,  # one motion mode: plain Gaussian likelihoods
+        extended_vessels=False,  # the point-target enumeration (cells: tests/test_extent.py)
     )
     f = _Filter([sensor], st, [])
     f.process(_scan(0, 10.0, [[1000.0, 1000.0], [1060.0, 1000.0]], [0, 1]), 0)
@@ -353,7 +354,7 @@ def test_fast_paths_give_the_general_result(monkeypatch):
     ]
     feed = make_feed(vessels, [Radar(site=(0.0, 0.0), clutter_per_scan=15.0)], 240.0, seed=3)
     fast = run_filter(feed.scans, feed.sensors, FilterSettings())
-    monkeypatch.setattr(_Filter, "_fast_path", lambda self, *a: False)
+    monkeypatch.setattr(tpmbm, "fast_path", lambda *a: False)
     monkeypatch.setattr(
         tpmbm,
         "update_single",

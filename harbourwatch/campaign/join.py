@@ -206,5 +206,8 @@ def _stitch(new_id: str, parts: Sequence[tuple[ChunkPieces, str]]) -> Trajectory
     return Trajectory(
         id=new_id, existence=existence, end_probability=last.end_probability,
         alive_at_end=last.alive_at_end, plot_ids=np.full(arrays["time"].size, -1, np.int64),
-        **arrays,
+        time=arrays["time"], mean=arrays["mean"], cov=arrays["cov"],
+        filt_mean=arrays["filt_mean"], filt_cov=arrays["filt_cov"],
+        pred_mean=arrays["pred_mean"], pred_cov=arrays["pred_cov"],
+        sensor_ids=arrays["sensor_ids"],
     )

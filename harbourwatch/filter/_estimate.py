@@ -11,9 +11,10 @@ the missed detections after it carry no information about where it went.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
-from typing import Any, NamedTuple
+from typing import TYPE_CHECKING, Any, NamedTuple
 
 import numpy as np
 from numpy.typing import NDArray
@@ -23,7 +24,18 @@ from harbourwatch.filter._kernels import rts_smooth_chain
 from harbourwatch.filter._nodes import NodeStore
 from harbourwatch.filter.output import FilterOutput
 from harbourwatch.io.records import FilterSettings
+from harbourwatch.models.extent import hull_length
 from harbourwatch.trajectories import AsSeenTable, Trajectory
+
+if TYPE_CHECKING:
+    from harbourwatch.filter.tpmbm import _Filter
+
+
+#: Confirmation of a large vessel: an extended trajectory is reported once it was detected
+#: (a cell of plots assigned to it) in at least this many scans. A new extended vessel
+#: starts with existence 1 (a cell of several plots is never clutter), so the fragments a
+#: hull throws off for a few scans while it turns or stops would otherwise be reported.
+MIN_EXTENDED_DETECTIONS = 12
 
 
 class AsSeenRows(NamedTuple):
@@ -34,6 +46,7 @@ class AsSeenRows(NamedTuple):
     mean: NDArray[np.float64]
     sd: NDArray[np.float64]
     existence: NDArray[np.float64]
+    length: NDArray[np.float64]  # hull length as known then (NaN: point-like)
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -73,6 +86,8 @@ def build_output(end: FilterEnd) -> FilterOutput:
                 while nodes.plot[end_node] < 0 and nodes.parent[end_node] >= 0:
                     end_node = int(nodes.parent[end_node])
             idx = nodes.chain(end_node)
+            if lh.ext is not None and int((nodes.plot[idx] >= 0).sum()) < MIN_EXTENDED_DETECTIONS:
+                continue  # an unconfirmed extended vessel: a fragment of a hull, not a ship
             chosen.append(
                 (
                     float(nodes.t[idx[0]]),
@@ -108,6 +123,7 @@ def build_output(end: FilterEnd) -> FilterOutput:
                 alive_at_end=alive_at_end,
                 plot_ids=plots,
                 sensor_ids=nodes.sensor[idx].copy(),
+                extent=lh.ext,
             )
         )
     if end.as_seen:
@@ -124,8 +140,56 @@ def build_output(end: FilterEnd) -> FilterOutput:
             mean=np.concatenate([r.mean for r in end.as_seen])[order],
             sd=np.concatenate([r.sd for r in end.as_seen])[order],
             existence=np.concatenate([r.existence for r in end.as_seen])[order],
+            length=np.concatenate([r.length for r in end.as_seen])[order],
         )
     else:
         as_seen = AsSeenTable.empty()
     stats = {**end.stats, "plots_in_trajectories": used_plots, "nodes": nodes.n}
     return FilterOutput(trajectories=trajectories, as_seen=as_seen, stats=stats, log=list(end.log))
+
+
+def record_as_seen(self: _Filter, tk: float) -> None:
+    """Record the cheap filtered estimate of this moment (methods note §D).
+
+    The leaf of each Bernoulli of the best global hypothesis with ``r``
+    above the threshold whose most likely end is "alive" and recent.
+    """
+    thr = self.settings.existence_threshold
+    oldest = tk - self.settings.as_seen_window_s
+    t_node = self.nodes.t.item
+    bids: list[int] = []
+    leaves: list[int] = []
+    rs: list[float] = []
+    lengths: list[float] = []
+    for c in self.clusters:
+        berns = c.berns
+        if c.logw.size == 1:
+            row = [c.table.item(0)] if len(berns) == 1 else c.table[0].tolist()
+        else:
+            lw = c.logw.tolist()
+            row = c.table[lw.index(max(lw))].tolist()  # the first best, as np.argmax
+        for b, h in zip(berns, row, strict=True):
+            if h < 0:
+                continue
+            lh = b.lhs[h]
+            if lh.frozen or lh.r <= thr or (lh.end_p and max(lh.end_p) > lh.alive):
+                continue
+            if t_node(lh.node) < oldest:
+                continue
+            bids.append(b.bid)
+            leaves.append(lh.node)
+            rs.append(lh.r)
+            lengths.append(math.nan if lh.ext is None else hull_length(lh.ext))
+    if bids:
+        idx = np.array(leaves, np.int64)
+        P = self.nodes.P[idx]
+        self.as_seen.append(
+            AsSeenRows(
+                time=tk,
+                bids=np.array(bids, np.int64),
+                mean=self.nodes.m[idx],
+                sd=np.sqrt(0.5 * (P[:, 0, 0] + P[:, 2, 2])),
+                existence=np.array(rs),
+                length=np.array(lengths),
+            )
+        )

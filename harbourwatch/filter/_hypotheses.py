@@ -93,7 +93,7 @@ def new_trajectory_weight(e: float, clutter: float) -> tuple[float, float]:
 class LocalHyp:
     """One local hypothesis of a Bernoulli (mutable only while being built)."""
 
-    __slots__ = ("node", "r", "alive", "end_nodes", "end_p", "frozen", "slot", "coasted")
+    __slots__ = ("node", "r", "alive", "end_nodes", "end_p", "frozen", "slot", "coasted", "ext")
 
     def __init__(
         self,
@@ -112,6 +112,9 @@ class LocalHyp:
         self.frozen = frozen
         self.slot = -1  # index into the current scan's arrays, -1 if not active
         self.coasted = False  # frozen because it went unobserved too long (not by β)
+        # plot rate and extent (α, β, v, V00, V01, V11) of an extended vessel at ``node``
+        # (see ``_extent``); None for a point-like one
+        self.ext: tuple[float, ...] | None = None
 
     def best_end(self) -> tuple[int, float, bool]:
         """``(node, probability, is_alive)`` of the most likely end time."""

@@ -20,12 +20,17 @@ started nothing) are dropped by :meth:`NodeStore.compact` before it grows.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 from numpy.typing import NDArray
 
 from harbourwatch.filter._kernels import reachable
 from harbourwatch.models.cv import cv_process_noise_batch, cv_transition_batch
 from harbourwatch.models.gaussian import kf_predict
+
+if TYPE_CHECKING:
+    from harbourwatch.filter._hypotheses import Cluster
 
 Array = NDArray[np.float64]
 IntArray = NDArray[np.int64]
@@ -123,3 +128,25 @@ class NodeStore:
         self.parent[:k] = remap[self.parent[old]]
         self.n = k
         return remap[:-1]
+
+
+def compact_nodes(nodes: NodeStore, clusters: list[Cluster], min_nodes: int) -> None:
+    """Drop nodes no hypothesis of ``clusters`` can reach any more, instead of growing the store.
+
+    Only when the store is at least 90 % full and holds ``min_nodes`` or more;
+    every local hypothesis' node indices are remapped.
+    """
+    cap = nodes.t.size
+    if nodes.n < 0.9 * cap or nodes.n < min_nodes:
+        return
+    all_lhs = [lh for c in clusters for b in c.berns for lh in b.lhs]
+    live = [lh.node for lh in all_lhs]
+    for lh in all_lhs:
+        live.extend(lh.end_nodes)
+    remap = nodes.compact(np.array(live, np.int64))
+    for lh in all_lhs:
+        lh.node = int(remap[lh.node])
+        if lh.end_nodes:
+            lh.end_nodes = tuple(remap[list(lh.end_nodes)].tolist())
+    if nodes.n > 0.5 * cap:  # mostly live: make room now
+        nodes._reserve(cap - nodes.n + 1)

@@ -15,15 +15,18 @@ from collections.abc import Callable
 import numpy as np
 from numpy.typing import NDArray
 
+from harbourwatch.filter._association import LONE_LOGW, LONE_TABLE, ScanContext
 from harbourwatch.filter._hypotheses import (
     ALIVE_FLOOR,
     Bernoulli,
+    Cluster,
     LocalHyp,
     miss_update,
     step_and_miss,
 )
+from harbourwatch.io.records import FilterSettings
 
-__all__ = ["ChildMaker", "group_work", "MISS", "DET", "NEW"]
+__all__ = ["ChildMaker", "group_work", "fast_path", "MISS", "DET", "NEW"]
 
 MISS, DET, NEW = 0, 1, 2  # kinds of queued nodes
 
@@ -54,7 +57,7 @@ class ChildMaker:
 
     __slots__ = (
         "base", "pend", "_leaf_nodes", "_pair_slot", "_pd", "_ps", "_inside", "_r_new",
-        "_r_prune", "_new_bid", "_miss_node", "_det_node",
+        "_r_prune", "_new_bid", "_miss_node", "_det_node", "slot_ext", "pair_ext", "born_ext",
     )
 
     def __init__(
@@ -81,6 +84,11 @@ class ChildMaker:
         self._new_bid = new_bid
         self._miss_node: dict[int, int] = {}
         self._det_node: dict[int, int] = {}
+        # extents (see ``_extent``): predicted per extended slot, updated per extended pair,
+        # of a new vessel per multi-plot cell; point-like hypotheses have none
+        self.slot_ext: dict[int, tuple[float, ...]] = {}
+        self.pair_ext: dict[int, tuple[float, ...]] = {}
+        self.born_ext: dict[int, tuple[float, ...]] = {}
 
     def miss(self, old: LocalHyp) -> LocalHyp:
         """The missed-detection child of ``old`` (``old`` itself where it cannot be detected)."""
@@ -90,6 +98,7 @@ class ChildMaker:
         if not self._inside[s]:  # just outside the cover: reweight, no new state
             r2, al2, endp2, _ = miss_update(old.r, old.alive, old.end_p, self._pd[s])
             child = LocalHyp(old.node, r2, al2, old.end_nodes, endp2)
+            child.ext = old.ext
             if al2 < ALIVE_FLOOR:
                 child.freeze()
             return child
@@ -102,6 +111,8 @@ class ChildMaker:
             node = self._miss_node[s] = self.base + len(self.pend) // 3
             self.pend.extend((MISS, s, old.node))
         child = LocalHyp(node, r2, al2, old.end_nodes + (old.node,), endp2)
+        if old.ext is not None:
+            child.ext = self.slot_ext.get(s, old.ext)
         if al2 < ALIVE_FLOOR:
             child.freeze()
         return child
@@ -112,12 +123,18 @@ class ChildMaker:
         if node is None:
             node = self._det_node[pair] = self.base + len(self.pend) // 3
             self.pend.extend((DET, pair, self._leaf_nodes[self._pair_slot[pair]]))
-        return LocalHyp(node, 1.0)
+        child = LocalHyp(node, 1.0)
+        if self.pair_ext:
+            child.ext = self.pair_ext.get(pair)
+        return child
 
     def born(self, j: int) -> Bernoulli:
-        """A new Bernoulli whose trajectory starts at plot ``j``."""
+        """A new Bernoulli whose trajectory starts at plot (or multi-plot cell) ``j``."""
         self.pend.extend((NEW, j, -1))
-        return Bernoulli(self._new_bid(), [LocalHyp(self.base + len(self.pend) // 3 - 1, self._r_new[j])])
+        lh = LocalHyp(self.base + len(self.pend) // 3 - 1, self._r_new[j])
+        if self.born_ext:
+            lh.ext = self.born_ext.get(j)
+        return Bernoulli(self._new_bid(), [lh])
 
     def queued(self) -> tuple[NDArray[np.int64], NDArray[np.int64], NDArray[np.int64]]:
         """The queued nodes' kinds, sources (slot, pair or plot) and parent nodes."""
@@ -166,3 +183,56 @@ def group_work(
         groups.values(), key=lambda g: g[0]
     )
     return work, touched | set(miss_only)
+
+
+def fast_path(clusters: list[Cluster], settings: FilterSettings, plots: list[int], cis: list[int],
+              ctx: ScanContext, r_new: list[float], out: list[Cluster]) -> bool:
+    """Handle the common tiny groups without the general machinery.
+
+    Same result as :func:`update_group` followed by :func:`prune` for: a
+    plot that gates with nothing; one Bernoulli with one hypothesis and no
+    plot; and one Bernoulli with one hypothesis and one plot when one of
+    the two children is below the weight threshold.
+    """
+    thr = settings.existence_prune
+    if not cis:
+        if len(plots) != 1:
+            return False
+        j = plots[0]
+        if r_new[j] >= thr:
+            out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
+        return True
+    if len(cis) != 1 or len(plots) > 1:
+        return False
+    c = clusters[cis[0]]
+    if c.logw.size != 1 or len(c.berns) != 1:
+        return False
+    b = c.berns[0]
+    lh = b.lhs[c.table.item(0)]
+    if not plots:
+        child = ctx.miss_child(lh)
+        if child.r >= thr:
+            out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
+        return True
+    j = plots[0]
+    pair = -1
+    for jj, p in ctx.det_pairs.get(lh.slot, ()):
+        if jj == j:
+            pair = p
+            break
+    if pair < 0:
+        return False
+    d = ctx.ln_miss[lh.slot] + ctx.ln_new_list[j] - ctx.ln_det[pair]
+    lwp = settings.log_weight_prune
+    if d < -lwp:
+        child = ctx.det_child(pair, j)
+        out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
+        return True
+    if d > lwp:
+        child = ctx.miss_child(lh)
+        if child.r >= thr:
+            out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
+        if r_new[j] >= thr:
+            out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
+        return True
+    return False

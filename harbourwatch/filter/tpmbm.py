@@ -61,26 +61,38 @@ import numpy as np
 from numpy.typing import NDArray
 
 from harbourwatch.filter._association import (
-    LONE_LOGW,
-    LONE_TABLE,
     ScanContext,
     prune,
     update_group,
     update_single,
 )
+from harbourwatch.filter._cells import (
+    cell_groups,
+    group_partitions,
+    has_close_plots,
+    update_partitions,
+)
 from harbourwatch.filter._cluttermap import ClutterMap
-from harbourwatch.filter._estimate import AsSeenRows, FilterEnd, build_output
+from harbourwatch.filter._estimate import AsSeenRows, FilterEnd, build_output, record_as_seen
+from harbourwatch.filter._extscan import (
+    cells_over_vessels,
+    established,
+    extended_scan,
+    free_plots,
+    inside_hulls,
+    overlap_penalty,
+    predict_slots,
+)
 from harbourwatch.filter._gating import MIN_STEP_S, chi2_gate, cover_detection, gate_pairs
 from harbourwatch.filter._hypotheses import (
-    Bernoulli,
     Cluster,
     LocalHyp,
     detection_log_weight,
 )
 from harbourwatch.filter._kernels import write_nodes
 from harbourwatch.filter._motion import TwoModeMotion
-from harbourwatch.filter._nodes import NodeStore
-from harbourwatch.filter._scanstep import ChildMaker, group_work
+from harbourwatch.filter._nodes import NodeStore, compact_nodes
+from harbourwatch.filter._scanstep import ChildMaker, fast_path, group_work
 from harbourwatch.filter._undetected import UndetectedDensity
 from harbourwatch.filter.output import FilterOutput
 from harbourwatch.io.records import FilterSettings
@@ -95,6 +107,7 @@ _CAP_TEXT = {
     "max_local_hypotheses": "local hypotheses of a trajectory cut to max_local_hypotheses",
     "merged_hypotheses": "product of merged clusters cut to 10 x max_global_hypotheses",
     "large_group": "too many plots in one group: only the best assignment is kept",
+    "max_partitions": "candidate partitions of a group's plots into cells cut to the first 8",
 }
 
 
@@ -136,6 +149,7 @@ class _Filter:
         self.timers: dict[str, float] = defaultdict(float)
         self.max_berns = 0
         self.max_hyps = 0
+        self.ext_pairs = 0  # (hypothesis, cell) pairs scored with the extended model
         self.skipped_scans = 0
         self.plots_total = 0
         self.scan_count = 0
@@ -182,6 +196,8 @@ class _Filter:
         # gather the active local hypotheses
         lhs: list[LocalHyp] = []
         slot_cluster: list[int] = []  # cluster index of each slot
+        ext_slots: list[int] = []  # slots of extended vessels (see ``_extent``)
+        slot_bern: list[int] = []  # Bernoulli id of each slot
         for ci, c in enumerate(self.clusters):
             for b in c.berns:
                 for lh in b.lhs:
@@ -189,8 +205,11 @@ class _Filter:
                         lh.slot = -1
                     else:
                         lh.slot = len(lhs)
+                        if lh.ext is not None:
+                            ext_slots.append(len(lhs))
                         lhs.append(lh)
                         slot_cluster.append(ci)
+                        slot_bern.append(b.bid)
         n = len(lhs)
         node_idx = np.fromiter((lh.node for lh in lhs), np.int64, n)
         t_leaf = self.nodes.t[node_idx]
@@ -210,6 +229,13 @@ class _Filter:
                 lhs[s].freeze(coasted=True)
                 lhs[s].slot = -1
         pd = np.where(coast, 0.0, cover_detection(pm, pP, sensor))
+        slot_ext: dict[int, tuple[float, float, float, Array]] = {}
+        ext_pred: dict[int, tuple[float, ...]] = {}
+        pd_point = pd
+        if ext_slots:  # extended vessels: p_D of "at least one plot", and off the point path
+            slot_ext, ext_pred, pd = predict_slots(lhs, ext_slots, dt, pd)
+            pd_point = pd.copy()
+            pd_point[ext_slots] = 0.0
         # a missed detection makes a node only where the predicted mean is inside the range
         hard = np.hypot(pm[:, 0] - sensor.site[0], pm[:, 2] - sensor.site[1]) <= sensor.max_range_m
         r = np.fromiter((lh.r for lh in lhs), float, n)
@@ -221,9 +247,25 @@ class _Filter:
 
         # gating and detection children (vectorised over hypothesis x plot)
         t0 = _time.perf_counter()
-        z, R, tj = scan.z, scan.R, scan.plot_time
-        pairs = gate_pairs(self.gate, self.motion, leaf_mm, leaf_mP, leaf_mu, pd, t_leaf, z, R, tj)
+        z, R, tj, ids = scan.z, scan.R, scan.plot_time, scan.plot_ids
+        pairs = gate_pairs(self.gate, self.motion, leaf_mm, leaf_mP, leaf_mu, pd_point, t_leaf,
+                           z, R, tj)
+        ext = None
+        # cells only where they matter: an extended vessel to update, or three close plots of
+        # no established small craft that could start one (``_extscan.PAIR_BIRTH``: not two)
+        if st.extended_vessels and (ext_slots or (m > 2 and has_close_plots(
+                free_plots(z, pairs[0], pairs[1], pP)))):
+            ext = extended_scan(self.motion, self.gate, (leaf_mm, leaf_mP, leaf_mu, t_leaf), pm,
+                                pP, tmiss, pd, slot_ext, z, R, tj, ids, pairs, slot_bern)
+            if ext.book.cells or ext.ext_pairs:
+                pairs = ext.pairs
+                z, R, tj, ids = ext.z, ext.R, ext.tj, ext.ids
+                self.ext_pairs += ext.ext_pairs
+            else:
+                ext = None
         ii, jj, ll, stamp, m_upd, P_upd, um, uP, mu_upd = pairs
+        if slot_ext and ii.size:
+            ll = overlap_penalty(ii, jj, ll, z, pm, pP, slot_ext, slot_bern, r)
         self._pair_modes = (um, uP, mu_upd)
         self._miss_modes = (pmm, pmP, mu_pred)
         self._pair_plot = jj
@@ -237,14 +279,23 @@ class _Filter:
             np.hypot(z[:, 0] - sensor.site[0], z[:, 1] - sensor.site[1]) <= sensor.max_range_m
         )
         e = np.where(in_range, sensor.detection_probability, 0.0) * self.ppp.density(z)
+        if slot_ext:  # no vessel starts inside a known hull
+            e[inside_hulls(z, pm, pP, slot_ext, circle=np.arange(z.shape[0]) >= m)] = 0.0
         # clutter intensity: the configured rate, raised in cells of a persistent storm
         explained = np.zeros(m, bool)
-        explained[jj[r[ii] > 0.5]] = True
-        lam = self.clutter_map.intensity(scan.sensor, z, ~explained, sensor.clutter_intensity,
+        explained[jj[(r[ii] > 0.5) & (jj < m)]] = True
+        lam = self.clutter_map.intensity(scan.sensor, z[:m], ~explained, sensor.clutter_intensity,
                                          math.pi * sensor.max_range_m**2)
+        if z.shape[0] > m:  # multi-plot cells: their new-vessel weight is set below
+            lam = np.concatenate([np.broadcast_to(lam, (m,)), np.zeros(z.shape[0] - m)])
         w_new = np.maximum(e + lam, 1e-300)  # > 0: every plot can always be clutter
         ln_new = np.log(w_new)
         r_new = e / w_new
+        if ext is not None and ext.book.cells:  # a multi-plot cell: a new extended vessel
+            point = np.flatnonzero((r > 0.5) & (pd_point > 0) & established(pP))
+            e[m:][cells_over_vessels(ext, pm, point)] = 0.0
+            ln_new[m:] = np.log(np.maximum(e[m:], 1e-300)) + ext.cell_ln_lik
+            r_new[m:] = 1.0
         self.timers["gate"] += _time.perf_counter() - t0
 
         # children of the local hypotheses; their nodes are written in one batch below
@@ -256,18 +307,33 @@ class _Filter:
             self.nodes.n, node_idx.tolist(), ii_l, pd_l, ps.tolist(), hard.tolist(), r_new_l,
             st.existence_prune, self._new_bid,
         )
+        if ext is not None:
+            maker.slot_ext, maker.pair_ext, maker.born_ext = ext_pred, ext.pair_ext, ext.born_ext
+        elif ext_pred:
+            maker.slot_ext = ext_pred
         ctx = ScanContext(
             pd_l, ln_miss.tolist(), det_pairs, ln_det.tolist(), ln_new, maker.miss,
             maker.detection, maker.born, ln_new.tolist(),
         )
-        work, busy = group_work(
-            m, len(self.clusters), ii_l, jj_l, slot_cluster, np.flatnonzero(pd > 0).tolist()
-        )
+        cover_slots = np.flatnonzero(pd > 0).tolist()
+        if ext is not None and ext.book.cells:
+            work, busy = cell_groups(m, len(self.clusters), ii_l, jj_l, slot_cluster,
+                                     cover_slots, ext.book)
+        else:
+            work, busy = group_work(m, len(self.clusters), ii_l, jj_l, slot_cluster, cover_slots)
         keep_clusters = [c for ci, c in enumerate(self.clusters) if ci not in busy]
         new_clusters: list[Cluster] = []
         updated = []
         for plots, cis in work:
-            if self._fast_path(plots, cis, ctx, r_new_l, new_clusters):
+            if ext is not None and ext.book.cells and len(plots) > 1:
+                parts = group_partitions(plots, ext.partitions, ext.book)
+                if len(parts) > 1:
+                    cls = [self.clusters[ci] for ci in cis]
+                    updated.append(update_partitions(cls, parts, ctx,
+                                                     max_hyp=st.max_global_hypotheses,
+                                                     count_cap=self.count_cap))
+                    continue
+            if fast_path(self.clusters, st, plots, cis, ctx, r_new_l, new_clusters):
                 continue
             cls = [self.clusters[ci] for ci in cis]
             if len(cls) == 1 and len(cls[0].berns) == 1 and len(plots) <= 1:
@@ -278,7 +344,7 @@ class _Filter:
                     cls, plots, ctx, max_hyp=st.max_global_hypotheses, count_cap=self.count_cap
                 )
             )
-        self._flush_nodes(maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan)
+        self._flush_nodes(maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, ids, tj)
         for berns, table, logw in updated:
             new_clusters.extend(
                 prune(
@@ -305,62 +371,11 @@ class _Filter:
         nb = sum(len(c.berns) for c in self.clusters)
         self.max_berns = max(self.max_berns, nb)
         self.max_hyps = max([self.max_hyps] + [c.logw.size for c in new_clusters])
-        self._record_as_seen(tk)
-        self._maybe_compact()
+        record_as_seen(self, tk)
+        compact_nodes(self.nodes, self.retired + self.clusters, _COMPACT_MIN)
         self.timers["bookkeeping"] += _time.perf_counter() - t0
 
-    def _fast_path(self, plots, cis, ctx, r_new, out) -> bool:  # type: ignore[no-untyped-def]
-        """Handle the common tiny groups without the general machinery.
-
-        Same result as :func:`update_group` followed by :func:`prune` for: a
-        plot that gates with nothing; one Bernoulli with one hypothesis and no
-        plot; and one Bernoulli with one hypothesis and one plot when one of
-        the two children is below the weight threshold.
-        """
-        thr = self.settings.existence_prune
-        if not cis:
-            if len(plots) != 1:
-                return False
-            j = plots[0]
-            if r_new[j] >= thr:
-                out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
-            return True
-        if len(cis) != 1 or len(plots) > 1:
-            return False
-        c = self.clusters[cis[0]]
-        if c.logw.size != 1 or len(c.berns) != 1:
-            return False
-        b = c.berns[0]
-        lh = b.lhs[c.table.item(0)]
-        if not plots:
-            child = ctx.miss_child(lh)
-            if child.r >= thr:
-                out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
-            return True
-        j = plots[0]
-        pair = -1
-        for jj, p in ctx.det_pairs.get(lh.slot, ()):
-            if jj == j:
-                pair = p
-                break
-        if pair < 0:
-            return False
-        d = ctx.ln_miss[lh.slot] + ctx.ln_new_list[j] - ctx.ln_det[pair]
-        lwp = self.settings.log_weight_prune
-        if d < -lwp:
-            child = ctx.det_child(pair, j)
-            out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
-            return True
-        if d > lwp:
-            child = ctx.miss_child(lh)
-            if child.r >= thr:
-                out.append(Cluster([Bernoulli(b.bid, [child])], LONE_TABLE, LONE_LOGW))
-            if r_new[j] >= thr:
-                out.append(Cluster([ctx.born(j)], LONE_TABLE, LONE_LOGW))
-            return True
-        return False
-
-    def _flush_nodes(self, maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan):  # type: ignore[no-untyped-def]
+    def _flush_nodes(self, maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, ids, tj):  # type: ignore[no-untyped-def]
         """Write the scan's queued nodes in one compiled pass (see ``_kernels.write_nodes``).
 
         A missed detection carries the predicted per-mode moments, a
@@ -377,71 +392,11 @@ class _Filter:
         write_nodes(
             nodes.columns(), start, kinds, src, par, scan.sensor, self.motion.q,
             self.motion.initial_mu(1)[0], (tmiss, pm, pP, pmm, pmP, mu_pred),
-            (stamp, m_upd, P_upd, um, uP, mu_upd), self._pair_plot, scan.plot_ids,
-            scan.plot_time, z, R, self.settings.birth_speed_sd_m_s**2,
+            (stamp, m_upd, P_upd, um, uP, mu_upd), self._pair_plot, ids, tj, z, R,
+            self.settings.birth_speed_sd_m_s**2,
         )
 
     # -- estimates ---------------------------------------------------------------------
-    def _record_as_seen(self, tk: float) -> None:
-        """Record the cheap filtered estimate of this moment (methods note §D).
-
-        The leaf of each Bernoulli of the best global hypothesis with ``r``
-        above the threshold whose most likely end is "alive" and recent.
-        """
-        thr = self.settings.existence_threshold
-        oldest = tk - self.settings.as_seen_window_s
-        t_node = self.nodes.t.item
-        bids: list[int] = []
-        leaves: list[int] = []
-        rs: list[float] = []
-        for c in self.clusters:
-            berns = c.berns
-            if c.logw.size == 1:
-                row = [c.table.item(0)] if len(berns) == 1 else c.table[0].tolist()
-            else:
-                lw = c.logw.tolist()
-                row = c.table[lw.index(max(lw))].tolist()  # the first best, as np.argmax
-            for b, h in zip(berns, row, strict=True):
-                if h < 0:
-                    continue
-                lh = b.lhs[h]
-                if lh.frozen or lh.r <= thr or (lh.end_p and max(lh.end_p) > lh.alive):
-                    continue
-                if t_node(lh.node) < oldest:
-                    continue
-                bids.append(b.bid)
-                leaves.append(lh.node)
-                rs.append(lh.r)
-        if bids:
-            idx = np.array(leaves, np.int64)
-            P = self.nodes.P[idx]
-            self.as_seen.append(
-                AsSeenRows(
-                    time=tk,
-                    bids=np.array(bids, np.int64),
-                    mean=self.nodes.m[idx],
-                    sd=np.sqrt(0.5 * (P[:, 0, 0] + P[:, 2, 2])),
-                    existence=np.array(rs),
-                )
-            )
-
-    def _maybe_compact(self) -> None:
-        """Drop nodes no hypothesis can reach any more, instead of growing the store."""
-        nodes = self.nodes
-        cap = nodes.t.size
-        if nodes.n < 0.9 * cap or nodes.n < _COMPACT_MIN:
-            return
-        all_lhs = [lh for c in self.retired + self.clusters for b in c.berns for lh in b.lhs]
-        live = [lh.node for lh in all_lhs]
-        for lh in all_lhs:
-            live.extend(lh.end_nodes)
-        remap = nodes.compact(np.array(live, np.int64))
-        for lh in all_lhs:
-            lh.node = int(remap[lh.node])
-            if lh.end_nodes:
-                lh.end_nodes = tuple(remap[list(lh.end_nodes)].tolist())
-        if nodes.n > 0.5 * cap:  # mostly live: make room now
-            nodes._reserve(cap - nodes.n + 1)
 
 
 def _finished(c: Cluster) -> bool:
@@ -488,6 +443,7 @@ def run_tpmbm(
                 "caps_bitten": dict(filt.caps),
                 "max_bernoullis": filt.max_berns,
                 "max_global_hypotheses": filt.max_hyps,
+                "extended_pairs": filt.ext_pairs,
             },
             log=filt.log,
         )

@@ -151,6 +151,10 @@ class FilterSettings:
     as_seen_window_s
         The as-seen view shows a trajectory while its last state is at most
         this old.
+    extended_vessels
+        Model vessels that give several plots per scan (large ships near the
+        radar: plot rate and hull extent, cells of plots). ``False`` gives the
+        point-target filter (at most one plot per vessel per scan).
     """
 
     accel_psd_m2_s3: float = 0.0002
@@ -173,6 +177,7 @@ class FilterSettings:
     max_coast_sd_m: float = 500.0
     min_empty_scan_clutter: float = 3.0
     as_seen_window_s: float = 15.0
+    extended_vessels: bool = True
 
 
 @dataclass(frozen=True, kw_only=True)

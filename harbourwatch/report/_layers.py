@@ -89,6 +89,15 @@ def track_status(tr: Trajectory) -> str:
     return "present" if tr.alive_at_end else "departed"
 
 
+def size_text(tr: Trajectory) -> str:
+    """The vessel's estimated size in words (plain text; the numbers are the filter's)."""
+    sz = tr.size
+    if sz is None:
+        return "point-like (at most one plot per scan)"
+    length, beam, _, rate = sz
+    return f"hull about {length:.0f} m by {beam:.0f} m, {rate:.1f} plots per scan"
+
+
 def add_track(parent: Element, tr: Trajectory, latlon: NDArray[np.float64],
               *, role: str | None = None, extra_class: str = "") -> folium.PolyLine:
     """One trajectory as its own Leaflet polyline (class ``hw-traj``) with a tooltip."""
@@ -97,6 +106,8 @@ def add_track(parent: Element, tr: Trajectory, latlon: NDArray[np.float64],
     words = "present at end of shift" if status == "present" else "departed"
     tip = (f"<b>{esc_tooltip(tr.id)}</b><br>{format_clock(tr.start)}\u2013"
            f"{format_clock(tr.end)} UTC, {words}<br>existence {tr.existence:.2f}")
+    if tr.extent is not None:
+        tip += f"<br>{esc_tooltip(size_text(tr))}"
     line = folium.PolyLine(
         locations=round5(latlon),
         color=st["color"],

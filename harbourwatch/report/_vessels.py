@@ -24,6 +24,7 @@ from harbourwatch.units import KNOT_M_S, fmt_duration
 
 if TYPE_CHECKING:
     from harbourwatch.report import ReportInputs
+    from harbourwatch.trajectories import Trajectory
 
 __all__ = ["VesselRow", "vessel_rows", "vessels_payload", "vessels_html", "filter_choices"]
 
@@ -42,6 +43,7 @@ class VesselRow:
     zones: tuple[str, ...]  # zone ids, in zone file order
     rules: tuple[str, ...]  # rule ids of the alerts it is part of
     n_alerts: int
+    size: str = ""  # estimated hull length x beam of a large vessel, "" for a point-like one
 
 
 def vessel_rows(inputs: ReportInputs, visits: Sequence[ZoneVisits]) -> list[VesselRow]:
@@ -62,8 +64,18 @@ def vessel_rows(inputs: ReportInputs, visits: Sequence[ZoneVisits]) -> list[Vess
             mean_kn=float(tr.speed.mean() / KNOT_M_S) if tr.time.size else 0.0,
             zones=tuple(by_track.get(tr.id, [])),
             rules=tuple(dict.fromkeys(a.rule for a in mine)), n_alerts=len(mine),
+            size=_size(tr),
         ))
     return rows
+
+
+_DASH = "\u2014"
+
+
+def _size(tr: Trajectory) -> str:
+    """``"281 x 40 m"`` for a large vessel (its estimated hull), ``""`` for a point-like one."""
+    sz = tr.size
+    return "" if sz is None else f"{sz[0]:.0f} \u00d7 {sz[1]:.0f} m"
 
 
 def vessels_payload(rows: Sequence[VesselRow], t0: float) -> list[dict[str, object]]:
@@ -95,7 +107,7 @@ def vessels_html(inputs: ReportInputs, rows: Sequence[VesselRow]) -> str:
             f'<td class="num" data-sort="{r.distance_m:.1f}">{esc(fmt_distance(r.distance_m))}</td>'
             f'<td class="num" data-sort="{r.max_kn:.3f}">{r.max_kn:.1f}</td>'
             f'<td class="num" data-sort="{r.mean_kn:.3f}">{r.mean_kn:.1f}</td>'
-            "<td>\u2014</td>"
+            f"<td>{esc(r.size or _DASH)}</td>"
             f"<td>{zone_txt}</td>"
             f'<td class="num" data-sort="{r.n_alerts}">{r.n_alerts}</td>'
             f"<td>{'present at end' if r.status == 'present' else 'departed'}</td></tr>"

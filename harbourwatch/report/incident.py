@@ -28,6 +28,7 @@ from harbourwatch.report._layers import (
     add_zones,
     alert_strings,
     ellipse_latlon,
+    size_text,
     track_status,
     zone_label,
 )
@@ -344,12 +345,22 @@ def _speed_chart(inc: _Incident) -> str:
 
 
 # --------------------------------------------------------------------------- tables
+def _sizes(inc: _Incident) -> dict[str, str]:
+    """Estimated size per trajectory of the alert, when one of them is a large vessel."""
+    if not any(tr.extent is not None for _, tr in inc.trs):
+        return {}
+    return {tr.id: size_text(tr) for _, tr in inc.trs}
+
+
 def _facts(inc: _Incident) -> str:
     a = inc.alert
+    sizes = _sizes(inc)
     facts = [
         ("rule", f"{a.rule} ({a.kind})"),
         ("trajectory", a.track),
+        ("size", sizes.get(a.track, "")),
         ("other trajectory", a.other_track),
+        ("other size", sizes.get(a.other_track, "") if a.other_track else ""),
         ("zone", zone_label(inc.zone) if inc.zone is not None else a.zone),
         ("start", fmt_clock(a.start, day=inc.day, tz=inc.tz)),
         ("end", fmt_clock(a.end, day=inc.day, tz=inc.tz)),
@@ -392,6 +403,9 @@ def incident_html(inputs: ReportInputs, index: int) -> str:
     sd0 = inc.ellipses[0][4] if inc.ellipses else None
     text = narrative(a, rule=inc.rule, zone=inc.zone, n_plots=n_plots if inc.trs else None,
                      sd_m=sd0, positions=inc.positions)
+    sizes = _sizes(inc)
+    if sizes:  # large vessels: say how large
+        text += " Estimated size: " + "; ".join(f"{k}: {v}" for k, v in sizes.items()) + "."
     body = (
         '<p class="hw-nav hw-noprint"><a href="../report.html">\u2190 shift overview</a> \u00b7 '
         '<a href="../report.html#how-to-read">how to read this report</a></p>'

@@ -63,6 +63,7 @@ from harbourwatch.rules.kinds import (
     register_kind,
 )
 from harbourwatch.rules.output import ALERT_COLUMNS, alerts_table, write_alerts_csv
+from harbourwatch.rules.size import size_probability
 from harbourwatch.scene.zones import LocalZone, local_zones
 from harbourwatch.trajectories import Trajectory, TrajectorySet
 
@@ -225,6 +226,9 @@ def _bbox(
 def _evaluate_single(kind: RuleKind, traj: Trajectory, seed: int, n: int) -> list[Alert]:
     if traj.time.size == 0:
         return []
+    p_size = size_probability(kind, traj)
+    if p_size <= 0.0:
+        return []
     if kind.zone is not None:
         margin = NEAR_MISS_SD * float(position_sd_bound(traj.cov).max()) + 1.0
         if not kind.zone.box_near(_bbox(traj), margin):
@@ -242,13 +246,15 @@ def _evaluate_single(kind: RuleKind, traj: Trajectory, seed: int, n: int) -> lis
         with kind.sampling_window(mean, traj.cov[w0 : w1 + 1]):
             smp_ep = _episodes(kind, kind.condition(draws), t)
         for a, b, frac, source in _match(mean_ep, smp_ep, n):
-            p = traj.existence * frac
+            p = traj.existence * frac * p_size
             if not _raise(kind, p):
                 continue
             view = EpisodeView(track=traj.id, other_track="", time=t, states=mean,
                                other_states=None, i0=a, i1=b, probability=p)
             extra = {"existence": traj.existence, "sample_fraction": frac,
                      "n_samples": n, "source": source}
+            if p_size < 1.0 or traj.extent is not None:
+                extra["size_probability"] = p_size
             alerts.append(_alert(kind, view, index_range=(w0 + a, w0 + b), extra=extra))
     return alerts
 
@@ -316,6 +322,9 @@ def _pair_prefilter(
 def _evaluate_pair(
     kind: RuleKind, a: Trajectory, b: Trajectory, bins: NDArray[np.int64], seed: int, n: int,
 ) -> list[Alert]:
+    p_size = size_probability(kind, a) * size_probability(kind, b)
+    if p_size <= 0.0:
+        return []
     t0, t1 = max(a.start, b.start), min(a.end, b.end)
     ia0 = int(np.searchsorted(a.time, t0, "left"))
     ia1 = int(np.searchsorted(a.time, t1, "right")) - 1
@@ -349,7 +358,7 @@ def _evaluate_pair(
         sb = _interp(b.time[j0 : j1 + 1], sample_window(b, rng, n, j0, j1), t, 1)
         smp_ep = _episodes(kind, kind.pair_condition(sa, sb), t)
         for i0, i1, frac, source in _match(mean_ep, smp_ep, n):
-            p = a.existence * b.existence * frac
+            p = a.existence * b.existence * frac * p_size
             if not _raise(kind, p):
                 continue
             view = EpisodeView(track=a.id, other_track=b.id, time=t, states=mean_a,
@@ -359,6 +368,8 @@ def _evaluate_pair(
             extra = {"other_index_range": (k0, k1),
                      "existence": a.existence, "other_existence": b.existence,
                      "sample_fraction": frac, "n_samples": n, "source": source}
+            if p_size < 1.0:
+                extra["size_probability"] = p_size
             alerts.append(_alert(kind, view, index_range=(w0 + i0, w0 + i1), extra=extra))
     return alerts
 

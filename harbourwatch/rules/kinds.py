@@ -72,10 +72,20 @@ def register_kind(cls: type[RuleKind]) -> type[RuleKind]:
         raise ParameterError(f"{cls.__name__} has no 'kind' name", parameter="kind")
     RULE_KINDS[cls.kind] = cls
     RULE_SCHEMAS[cls.kind] = RuleSchema(
-        kind=cls.kind, params=cls.params, zone_required=cls.zone_required,
+        kind=cls.kind, params=cls.params + SIZE_PARAMS, zone_required=cls.zone_required,
         description=cls.description,
     )
     return cls
+
+
+#: Optional hull-length limits every rule kind accepts (evaluated with the length's
+#: probability: see ``rules.size_probability``).
+SIZE_PARAMS = (
+    ParamSpec(name="min_length_m", required=False,
+              description="the rule applies to vessels at least this long, metres"),
+    ParamSpec(name="max_length_m", required=False,
+              description="the rule applies to vessels at most this long, metres"),
+)
 
 
 @dataclass(frozen=True)

@@ -9,6 +9,7 @@ Port Calder among them) and ``writing`` (the contract's files;
 
 from __future__ import annotations
 
+from harbourwatch.sim import quay as _quay  # noqa: F401  (registers the East Quay scenes)
 from harbourwatch.sim.engine import ARPA_ERRORS, TRUTH_STEP_S, arpa_sigmas, simulate
 from harbourwatch.sim.model import (
     Leg,

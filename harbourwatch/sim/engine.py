@@ -163,7 +163,8 @@ def _vessel_truth(plan: VesselPlan, scenario: Scenario,
     if not segs:
         return VesselTruth(name=plan.name, time=empty, lat_deg=empty, lon_deg=empty,
                            v_east_m_s=empty, v_north_m_s=empty, speed_m_s=empty,
-                           course_deg=empty, in_cover=np.zeros(0, bool))
+                           course_deg=empty, in_cover=np.zeros(0, bool),
+                           length_m=plan.length_m, beam_m=plan.hull_beam_m)
     a = max(segs[0].t0, 0.0)
     b = min(segs[-1].t1, dur)
     if b < a:
@@ -185,7 +186,8 @@ def _vessel_truth(plan: VesselPlan, scenario: Scenario,
         in_cover |= np.asarray(r) <= rmax
     return VesselTruth(name=plan.name, time=scenario.start_epoch_s + t, lat_deg=lat,
                        lon_deg=lon, v_east_m_s=speed * np.sin(c), v_north_m_s=speed * np.cos(c),
-                       speed_m_s=speed, course_deg=course, in_cover=in_cover)
+                       speed_m_s=speed, course_deg=course, in_cover=in_cover,
+                       length_m=plan.length_m, beam_m=plan.hull_beam_m)
 
 
 # --------------------------------------------------------------------------- radar
@@ -241,6 +243,84 @@ def _in_outage(t_rel: Array, outages: Sequence[tuple[float, float]]) -> NDArray[
     return out
 
 
+# --------------------------------------------------------------------------- hull scatter
+
+#: Range resolution cell of the simulated plot extractor (m).
+HULL_RANGE_CELL_M = 25.0
+#: Horizontal beamwidth of the simulated antenna (deg): a bearing cell is ``r`` x this.
+HULL_BEAM_DEG = 1.0
+#: Cells a hull may span and still give a single plot.
+HULL_ONE_PLOT_CELLS = 6.0
+#: Scale of the extra plots: Poisson mean ``HULL_EXTRA_SCALE * sqrt(cells - HULL_ONE_PLOT_CELLS)``.
+HULL_EXTRA_SCALE = 0.5
+
+
+def hull_cells(length_m: float, beam_m: float, range_m: Array, aspect_rad: Array) -> Array:
+    """Resolution cells a hull spans: ``(1 + a_r / c_r) (1 + a_b / c_b)``.
+
+    ``aspect_rad`` is the angle between the hull's axis and the line of
+    sight; ``a_r = L |cos| + B |sin|`` is the hull's extent along the line of
+    sight, ``a_b = L |sin| + B |cos|`` across it, ``c_r`` the range cell and
+    ``c_b = r θ_beam`` the bearing cell at that range.
+    """
+    ca, sa = np.abs(np.cos(aspect_rad)), np.abs(np.sin(aspect_rad))
+    a_r = length_m * ca + beam_m * sa
+    a_b = length_m * sa + beam_m * ca
+    c_b = np.maximum(range_m, 1.0) * math.radians(HULL_BEAM_DEG)
+    return (1.0 + a_r / HULL_RANGE_CELL_M) * (1.0 + a_b / c_b)
+
+
+def hull_plot_rate(length_m: float, beam_m: float, range_m: Array, aspect_rad: Array) -> Array:
+    """Mean number of plots per scan of a detected hull (1 + the extra plots' mean)."""
+    cells = hull_cells(length_m, beam_m, range_m, aspect_rad)
+    return 1.0 + HULL_EXTRA_SCALE * np.sqrt(np.maximum(cells - HULL_ONE_PLOT_CELLS, 0.0))
+
+
+def _hull_plots(sim: SimSensor, tr: VesselTruth, t: Array, lat: Array, lon: Array, r: Array,
+                tk: Array, rng: np.random.Generator) -> tuple[Array, ...]:
+    """Plots of a hull detected at times ``t`` (hull-scatter model of our own).
+
+    A detected hull gives ``1 + Poisson(HULL_EXTRA_SCALE sqrt(cells - 6))``
+    plots (:func:`hull_cells`: the cells it spans at that range and aspect,
+    so a small craft gives one plot). Each plot comes from a point drawn
+    uniformly over the hull, taken as the ellipse of semi-axes ``L/2`` along
+    the course and ``B/2`` across it, then carries the radar's range and
+    bearing errors like a point target's plot. Returns ``(time, lat, lon,
+    index of the detection, range error, bearing error, true range, true
+    bearing)``, one entry per plot.
+    """
+    cfg = sim.config
+    ve = np.interp(t, tr.time, tr.v_east_m_s)
+    vn = np.interp(t, tr.time, tr.v_north_m_s)
+    heading = np.degrees(np.arctan2(ve, vn))
+    still = np.hypot(ve, vn) < 0.05  # stopped: the last course is kept
+    heading = np.where(still, np.interp(t, tr.time, tr.course_deg), heading)
+    b0, _, _ = WGS84_GEOD.inv(np.full(t.size, cfg.lon_deg), np.full(t.size, cfg.lat_deg), lon, lat)
+    aspect = np.radians(heading - np.asarray(b0))
+    rate = hull_plot_rate(tr.length_m, tr.beam_m, r, aspect)
+    count = 1 + rng.poisson(rate - 1.0)
+    idx = np.repeat(np.arange(t.size), count)
+    n = idx.size
+    rad = np.sqrt(rng.random(n))
+    phi = 2.0 * math.pi * rng.random(n)
+    along = 0.5 * tr.length_m * rad * np.cos(phi)
+    across = 0.5 * tr.beam_m * rad * np.sin(phi)
+    h = np.radians(heading[idx])
+    de = along * np.sin(h) + across * np.cos(h)
+    dn = along * np.cos(h) - across * np.sin(h)
+    plon, plat, _ = WGS84_GEOD.fwd(lon[idx], lat[idx], np.degrees(np.arctan2(de, dn)),
+                                   np.hypot(de, dn))
+    sl, sa = np.full(n, cfg.lon_deg), np.full(n, cfg.lat_deg)
+    bp, _, rp = WGS84_GEOD.inv(sl, sa, np.asarray(plon), np.asarray(plat))
+    bp, rp = np.mod(np.asarray(bp), 360.0), np.asarray(rp)
+    rerr, berr = _draw_errors(sim, n, rng)
+    qlon, qlat, _ = WGS84_GEOD.fwd(sl, sa, bp + berr, np.abs(rp + rerr))
+    # each plot at the time the beam crosses its own bearing (same revolution)
+    tp = tk[idx] + bp / 360.0 * cfg.scan_period_s
+    tp = np.where(np.abs(tp - t[idx]) < 0.5 * cfg.scan_period_s, tp, t[idx])
+    return tp, np.asarray(qlat), np.asarray(qlon), idx, rerr, berr, rp, bp
+
+
 def _sensor_plots(si: int, sim: SimSensor, truths: Sequence[VesselTruth], scenario: Scenario,
                   rng: np.random.Generator) -> tuple[dict[str, Array], Array]:
     cfg = sim.config
@@ -289,6 +369,11 @@ def _sensor_plots(si: int, sim: SimSensor, truths: Sequence[VesselTruth], scenar
                 & (t >= t_start) & (t < t_start + dur)
                 & ~_in_outage(t - t_start, sim.outages_s))
         if not keep.any():
+            continue
+        if tr.length_m > 0.0:
+            hull = _hull_plots(sim, tr, t[keep], lat[keep], lon[keep], r[keep], tk[keep],
+                               rng)
+            add(hull[0], hull[1], hull[2], ks[keep][hull[3]], vi, *hull[4:])
             continue
         m = keep.sum()
         plon, plat, _ = WGS84_GEOD.fwd(np.full(m, site_lon), np.full(m, site_lat),

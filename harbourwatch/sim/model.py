@@ -22,7 +22,10 @@ vessel at bearing ``b`` is plotted at ``T_k + (b / 360) * scan_period_s``.
 A vessel inside ``max_range_m`` gives a plot with ``detection_probability``;
 the measured range and bearing carry independent Gaussian errors and the
 plot is placed with ``Geod.fwd`` from the antenna site along the noisy
-bearing at the noisy (geodesic) range. Clutter: a Poisson number of false
+bearing at the noisy (geodesic) range. A vessel with a hull
+(``VesselPlan.length_m > 0``) is plotted with the hull-scatter model of
+:mod:`._simengine` (several plots per scan, spread over the hull); a vessel
+of length 0 is point-like (at most one plot per scan). Clutter: a Poisson number of false
 plots per revolution, uniform over the cover disc.
 """
 
@@ -142,9 +145,20 @@ class VesselPlan:
     speed_kn: float
     legs: tuple[Leg, ...] = ()
     note: str = ""
+    length_m: float = 0.0
+    beam_m: float | None = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "legs", tuple(self.legs))
+        if not self.length_m >= 0.0:
+            raise ValueError(f"vessel {self.name!r}: length_m must be >= 0")
+        if self.beam_m is not None and not 0.0 <= self.beam_m <= self.length_m:
+            raise ValueError(f"vessel {self.name!r}: beam_m must lie in [0, length_m]")
+
+    @property
+    def hull_beam_m(self) -> float:
+        """Beam of the hull: ``beam_m`` or, when not given, a sixth of the length."""
+        return self.length_m / 6.0 if self.beam_m is None else float(self.beam_m)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -229,6 +243,8 @@ class VesselTruth:
     speed_m_s: Array
     course_deg: Array
     in_cover: NDArray[np.bool_]
+    length_m: float = 0.0
+    beam_m: float = 0.0
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)

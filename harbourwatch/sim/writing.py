@@ -103,8 +103,12 @@ def plots_columns(result: SimulationResult) -> dict[str, NDArray[np.str_]]:
 
 def truth_columns(result: SimulationResult, *, step_s: float = TRUTH_FILE_STEP_S
                   ) -> dict[str, NDArray[np.str_]]:
-    """Truth rows ``track,time,lat,lon`` every ``step_s`` (grid from the feed start), in cover only."""
-    names, times, lats, lons = [], [], [], []
+    """Truth rows ``track,time,lat,lon`` every ``step_s`` (grid from the feed start), in cover only.
+
+    When some vessel has a hull (``length_m > 0``) an optional ``length_m``
+    column follows (0 for a point-like vessel).
+    """
+    names, times, lats, lons, lengths = [], [], [], [], []
     t0 = result.start_epoch_s
     for tr in result.truth:
         if tr.time.size == 0:
@@ -121,11 +125,15 @@ def truth_columns(result: SimulationResult, *, step_s: float = TRUTH_FILE_STEP_S
         times.append(t0 + grid[cover])
         lats.append(lat[cover])
         lons.append(lon[cover])
+        lengths.append(np.full(int(cover.sum()), tr.length_m))
     if not names:
         z = np.zeros(0)
         return {"track": np.zeros(0, str), "time": format_utc(z), "lat": _fmt(z, 7), "lon": _fmt(z, 7)}
-    return {"track": np.concatenate(names).astype(str), "time": format_utc(np.concatenate(times)),
-            "lat": _fmt(np.concatenate(lats), 7), "lon": _fmt(np.concatenate(lons), 7)}
+    out = {"track": np.concatenate(names).astype(str), "time": format_utc(np.concatenate(times)),
+           "lat": _fmt(np.concatenate(lats), 7), "lon": _fmt(np.concatenate(lons), 7)}
+    if any(tr.length_m > 0 for tr in result.truth):
+        out["length_m"] = _fmt(np.concatenate(lengths), 1)
+    return out
 
 
 _FEED_FORMATS = ("csv", "csv.gz", "parquet")
