@@ -7,6 +7,9 @@ factor, peak memory of the child, stage timings from run.json, report size),
 then scored against its ground truth. Accuracy: the smaller scenarios of the
 simulator against the oracle (Kalman smoother with the true association).
 
+Campaign: a 4-day two-radar archive on two workers against one process
+(``bench/campaign.py``; ``BENCH_CAMPAIGN_DAYS`` changes the length).
+
 Set ``BENCH_HOURS`` to shorten the throughput feed (default 6) and
 ``BENCH_RUNS`` for the number of timed runs (default 2; the slowest counts).
 Then peak memory and wall time against the feed's length (``bench/memory.py``:
@@ -122,13 +125,14 @@ def fuzz() -> None:
 
 def main() -> None:
     OUT.mkdir(parents=True, exist_ok=True)
-    from bench import accuracy, bench_score, large_vessels, memory
+    from bench import accuracy, bench_score, campaign, large_vessels, memory
 
     accuracy.main()
     bench_score.main()
     large_vessels.main()
     throughput()
     memory.main()
+    campaign.main()
     fuzz()
 
 

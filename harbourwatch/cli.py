@@ -67,7 +67,7 @@ def _time_zone(text: str) -> str:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    """The ``harbourwatch`` argument parser with its four commands.
+    """The ``harbourwatch`` argument parser with its commands.
 
     Every option has a help text; the formatter adds each default to it.
     """
@@ -121,6 +121,40 @@ def build_parser() -> argparse.ArgumentParser:
     d = _parser(sub, "demo", "the bundled scenario, end to end")
     d.add_argument("--out", default="demo_out", metavar="DIR", help="output folder")
     d.add_argument("--quiet", action="store_true", help="no progress bars")
+
+    c = _parser(sub, "campaign", "review an archive of feeds in time chunks on dask.distributed")
+    c.add_argument("archive", nargs="+", metavar="ARCHIVE",
+                   help="feed files, folders (searched recursively) or glob patterns")
+    c.add_argument("--sensors", required=True, metavar="SENSORS.toml", help="the radars (TOML)")
+    c.add_argument("--zones", required=True, metavar="ZONES.geojson", help="the zones (GeoJSON)")
+    c.add_argument("--rules", required=True, metavar="RULES.toml", help="the rules (TOML)")
+    c.add_argument("--out", required=True, metavar="DIR",
+                   help="campaign folder (a re-run into it skips the finished chunks)")
+    c.add_argument("--chunk-h", type=float, default=24.0, metavar="H",
+                   help="chunk length in UTC hours (24: one UTC day)")
+    c.add_argument("--overlap-min", type=float, default=60.0, metavar="M",
+                   help="overlap shared by neighbouring chunks, minutes")
+    c.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                   help="address of a running dask scheduler; none: dask's configured "
+                        "scheduler-address, else a local cluster sized to this machine")
+    c.add_argument("--seed", type=int, default=0, help="seed of the alert-probability draws")
+    c.add_argument("--allow-gaps", action="store_true",
+                   help="accept chunks in which every radar is silent for more than 6 h")
+    c.add_argument("--quiet", action="store_true", help="no progress bar or log lines on the terminal")
+
+    f = _parser(sub, "find", "query a campaign's catalogue")
+    f.add_argument("catalogue", metavar="CATALOGUE", help="catalogue.duckdb or its campaign folder")
+    f.add_argument("--zone", default=None, help="zone id")
+    f.add_argument("--rule", default=None, help="rule id or kind")
+    f.add_argument("--from", dest="start", default=None, metavar="TIME",
+                   help="alerts ending at or after TIME (ISO 8601 with zone, or a date)")
+    f.add_argument("--to", dest="end", default=None, metavar="TIME",
+                   help="alerts starting before TIME")
+    f.add_argument("--min-length-m", type=float, default=None, metavar="L",
+                   help="vessels at least L metres long (catalogues with vessel sizes)")
+    f.add_argument("--sql", default=None, metavar="QUERY", help="run one SQL query of your own")
+    f.add_argument("--format", choices=("table", "csv", "json"), default="table",
+                   help="output format")
 
     m = _parser(sub, "simulate", "write an invented scenario with ground truth")
     m.add_argument("--scenario", default="demo", help="scenario name (see --list)")
@@ -177,6 +211,29 @@ def _cmd_demo(a: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _cmd_campaign(a: argparse.Namespace) -> int:
+    from .campaign import run_campaign
+
+    summary = run_campaign(
+        a.archive, sensors=a.sensors, zones=a.zones, rules=a.rules, out=a.out, chunk_h=a.chunk_h,
+        overlap_min=a.overlap_min, scheduler=a.scheduler, seed=a.seed, progress=not a.quiet,
+        allow_gaps=a.allow_gaps,
+    )
+    print(summary.as_text())
+    if summary.failed or summary.file_failures:
+        return EXIT_BAD_INPUT if summary.bad_input else EXIT_FAILURE
+    return EXIT_OK
+
+
+def _cmd_find(a: argparse.Namespace) -> int:
+    from .campaign import find, format_rows
+
+    cols, rows = find(a.catalogue, zone=a.zone, rule=a.rule, start=a.start, end=a.end,
+                      min_length_m=a.min_length_m, sql=a.sql)
+    print(format_rows(cols, rows, a.format))
+    return EXIT_OK
+
+
 def _cmd_simulate(a: argparse.Namespace) -> int:
     from harbourwatch.sim import SCENARIOS, simulate_to_dir
 
@@ -194,7 +251,8 @@ def _cmd_simulate(a: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-_COMMANDS = {"run": _cmd_run, "score": _cmd_score, "demo": _cmd_demo, "simulate": _cmd_simulate}
+_COMMANDS = {"run": _cmd_run, "score": _cmd_score, "demo": _cmd_demo, "simulate": _cmd_simulate,
+             "campaign": _cmd_campaign, "find": _cmd_find}
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -213,6 +213,8 @@ class _Request:
     screenshots: bool
     display_tz: str | None = None
     allow_gaps: bool = False
+    window: tuple[float, float] | None = None
+    collect: Callable[[RunInputs, TrajectorySet, Sequence[Alert]], None] | None = None
 
     def input_files(self) -> list[PathArg]:
         return [*self.feeds, self.sensors, self.zones, self.rules]
@@ -225,7 +227,7 @@ def _read_inputs(req: _Request, timings: dict[str, float]) -> RunInputs:
 
     t = time.perf_counter()
     inp = load_inputs(req.feeds, sensors=req.sensors, zones=req.zones, rules=req.rules,
-                      rule_schemas=RULE_SCHEMAS, allow_gaps=req.allow_gaps)
+                      rule_schemas=RULE_SCHEMAS, allow_gaps=req.allow_gaps, window=req.window)
     timings["read_inputs_s"] = time.perf_counter() - t
     return inp
 
@@ -325,7 +327,11 @@ def _review_into(req: _Request, inp: RunInputs, out_dir: Path, bars: RunProgress
     bars.close()
 
     timings["total_s"] = time.perf_counter() - t0
+    if req.window is not None:
+        provenance["parameters"]["window"] = [format_utc_one(w) for w in req.window]
     atomic_write_text(out_dir / "run.json", json.dumps(provenance, indent=2, sort_keys=True) + "\n")
+    if req.collect is not None:
+        req.collect(inp, tset, alerts)
 
     notes: list[str] = list(fout.log[:5])
     if req.screenshots:
@@ -380,6 +386,8 @@ def run_review(
     screenshots: bool = False,
     display_tz: str | None = None,
     allow_gaps: bool = False,
+    window: tuple[float, float] | None = None,
+    collect: Callable[[RunInputs, TrajectorySet, Sequence[Alert]], None] | None = None,
 ) -> RunSummary:
     """Review plot feeds end to end and write every output into ``out``.
 
@@ -413,6 +421,15 @@ def run_review(
         Accept a feed in which every radar is silent for longer than
         :data:`~harbourwatch.io.gaps.MAX_GAP_S` (each gap becomes a warning);
         refused otherwise, naming the plot on the smaller side of the gap.
+    window
+        Optional UTC time window ``(t0, t1)``, epoch seconds: only plots with
+        ``t0 <= time < t1`` are reviewed (a campaign chunk reads its own files
+        and keeps its window's rows).
+    collect
+        Optional callback given the validated inputs, the trajectory set and
+        the alerts once the outputs are written, inside the new folder before
+        it is swapped in (a campaign chunk keeps what it needs for joining and
+        radar health from there).
 
     Raises
     ------
@@ -426,7 +443,8 @@ def run_review(
     """
     req = _Request(feeds=feeds, sensors=sensors, zones=zones, rules=rules, out=out,
                    settings=settings or FilterSettings(), seed=seed, tile_url=tile_url,
-                   screenshots=screenshots, display_tz=display_tz, allow_gaps=allow_gaps)
+                   screenshots=screenshots, display_tz=display_tz, allow_gaps=allow_gaps,
+                   window=window, collect=collect)
     from harbourwatch.report._fmt import display_zone
 
     display_zone(display_tz)  # an unknown zone fails here, before any work

@@ -15,7 +15,7 @@ from pathlib import Path
 import pytest
 from pyproj import Geod
 
-from harbourwatch.report.screenshot import CHROMIUM, block_network
+from harbourwatch.report.screenshot import CHROMIUM, block_network, wait_for_map_to_settle
 
 pytestmark = [
     pytest.mark.browser,
@@ -47,6 +47,7 @@ def _open(browser: sync_api.Browser, path: Path, width: int, height: int = 900,
     block_network(page, problems)
     page.goto(path.resolve().as_uri(), wait_until="load")
     page.wait_for_selector(".folium-map .leaflet-overlay-pane svg", state="attached")
+    wait_for_map_to_settle(page)
     return ctx, page, problems
 
 
@@ -64,7 +65,9 @@ def test_each_incident_prints_on_one_a4_page_with_the_whole_episode(
         ctx, page, problems = _open(browser, path, 1280)
         page.set_viewport_size({"width": int(A4_INNER_PX[0]), "height": int(A4_INNER_PX[1])})
         page.emulate_media(media="print")
+        wait_for_map_to_settle(page)  # the fit started at load (slow on a loaded machine)
         page.evaluate("hwPage.fitFrame()")  # what the page does itself on beforeprint
+        wait_for_map_to_settle(page)  # and the redraw of the vector layer that follows
         assert page.evaluate("hwPage.episodeInView()"), path.name
         frame = page.locator(".folium-map").bounding_box()
         assert frame is not None
@@ -110,7 +113,9 @@ def test_overview_prints_as_map_page_then_alerts_table(browser: sync_api.Browser
     ctx, page, problems = _open(browser, demo_run / "report.html", 1280)
     page.set_viewport_size({"width": int(A4_INNER_PX[0]), "height": int(A4_INNER_PX[1])})
     page.emulate_media(media="print")
+    wait_for_map_to_settle(page)
     page.evaluate("hwPage.fitFrame()")
+    wait_for_map_to_settle(page)
     # the whole shift inside the printed map, nothing wider than the paper
     assert page.evaluate("""() => {
         const fit = JSON.parse(document.getElementById('hw-page-data').textContent).fit;

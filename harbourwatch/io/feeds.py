@@ -145,7 +145,8 @@ def _read_one(
     }
 
 
-def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorConfig]) -> PlotTable:
+def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorConfig], *,
+               window: tuple[float, float] | None = None) -> PlotTable:
     """Read and merge plot feeds (CSV, ``.csv.gz``, Parquet).
 
     Parameters
@@ -155,6 +156,9 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
     sensors
         The run's sensors; ``sensor`` values must be one of their ids, and
         :attr:`PlotTable.sensor` indexes this sequence.
+    window
+        Optional UTC time window ``(t0, t1)``, epoch seconds: only rows with
+        ``t0 <= time < t1`` are kept (after every row has been validated).
 
     Returns
     -------
@@ -189,6 +193,9 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
         cols = {c: np.concatenate([p[c] for p in parts]) for c in parts[0]}
     else:
         cols = {c: np.empty(0) for c in (*_COLUMNS, "source", "line")}
+    if window is not None:
+        inside = (cols["time"] >= window[0]) & (cols["time"] < window[1])
+        cols = {c: v[inside] for c, v in cols.items()}
     # by time, then by the plot's own values, and only then by file and line: plots that
     # share a time (a radar stamping a whole revolution at once) come out in the same
     # order whatever the order of the rows or the split of the files

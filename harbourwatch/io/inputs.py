@@ -68,6 +68,7 @@ def load_inputs(
     rules: str | PathLike[str],
     rule_schemas: Mapping[str, RuleSchema] | None = None,
     allow_gaps: bool = False,
+    window: tuple[float, float] | None = None,
 ) -> RunInputs:
     """Load and validate sensors, zones, rules and feeds (in that order), then form scans.
 
@@ -84,6 +85,9 @@ def load_inputs(
         Accept silences of every radar longer than
         :data:`~harbourwatch.io.gaps.MAX_GAP_S` (named in ``warnings``);
         without it such a feed is refused (see :func:`~harbourwatch.io.gaps.check_gaps`).
+    window
+        Optional UTC time window ``(t0, t1)`` in epoch seconds: only plots with
+        ``t0 <= time < t1`` are kept (see :func:`harbourwatch.io.feeds.read_feeds`).
 
     Raises
     ------
@@ -94,7 +98,7 @@ def load_inputs(
     sensor_cfg = load_sensors(sensors, digests=digests)
     zone_cfg = load_zones(zones, digests=digests)
     rule_cfg = load_rules(rules, zone_cfg, rule_schemas, digests=digests)
-    plots = read_feeds(feeds, sensor_cfg)
+    plots = read_feeds(feeds, sensor_cfg, window=window)
     digests.update(zip(plots.files, plots.sha256, strict=True))
     warnings = check_gaps(plots, allow_gaps=allow_gaps)
     scans = tuple(group_scans(plots, sensor_cfg))

@@ -14,7 +14,14 @@ from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 from typing import Any
 
-__all__ = ["CHROMIUM", "CHROMIUM_ARGS", "take_screenshots", "block_network", "page_load_seconds"]
+__all__ = [
+    "CHROMIUM",
+    "CHROMIUM_ARGS",
+    "take_screenshots",
+    "block_network",
+    "page_load_seconds",
+    "wait_for_map_to_settle",
+]
 
 CHROMIUM = "/usr/bin/chromium"
 CHROMIUM_ARGS = [
@@ -78,7 +85,7 @@ def _shoot(sync_playwright: Any, pages: list[Path], shots: Path) -> list[Path]:
             for src in pages:
                 page.goto(src.resolve().as_uri(), wait_until="load")
                 page.wait_for_selector(".folium-map .leaflet-overlay-pane svg", state="attached")
-                _wait_for_map_to_settle(page)
+                wait_for_map_to_settle(page)
                 dest = shots / (src.stem + ".png")
                 page.screenshot(path=str(dest), full_page=True)
                 written.append(dest)
@@ -87,7 +94,7 @@ def _shoot(sync_playwright: Any, pages: list[Path], shots: Path) -> list[Path]:
     return written
 
 
-def _wait_for_map_to_settle(page: Any) -> None:
+def wait_for_map_to_settle(page: Any) -> None:
     """Let a zoom or pan animation started while the page loaded (fitting the map to
     the incident) finish, so the screenshot shows the final view."""
     two_frames = (

@@ -361,6 +361,92 @@ def _bench(seed: int, duration_s: float | None) -> Scenario:
                     zones_geojson=port_calder_zones_geojson(), rules_toml=PORT_CALDER_RULES)
 
 
+def _watch_days(seed: int, duration_s: float | None) -> Scenario:
+    """Three 2-hour "days" at Port Calder with vessels across the day boundaries.
+
+    Boundaries (UTC) at 08:00 and 10:00 (7200 s and 14400 s into the feed):
+    a ketch loiters in the inner basin from about 07:37 to 08:20, a launch
+    crosses the exercise range under way from about 07:47 to 08:12, two
+    boats meet in the outer roads from about 09:45 to 10:15; a patrol boat
+    is present throughout; a pilot boat speeds in the fairway on the first
+    day and a tender enters the naval berth on the third.
+    """
+    dur = 3 * 7200.0 if duration_s is None else duration_s
+    common = dict(range_sigma_m=15.0, bearing_sigma_deg=0.4, detection_probability=0.9,
+                  false_plots_per_scan=3.0, max_range_m=14000.0)
+    sensors = (
+        SimSensor(config=_sensor("calder-head", -4200, 1700, scan_period_s=2.5, **common)),
+        SimSensor(config=_sensor("mole-light", 870, 0, scan_period_s=3.0, **common)),
+    )
+    patrol = [_go(-2500, -1800, 10), _go(-7000, -2800, 10)] * 13
+    v = [
+        _plan("ketch-anchor", 5400, -1000, 300, 60, 3,
+              [_go(0, 700, 3), Leg.stop(until_s=8400), _go(-1200, 350, 3)],
+              "loiters in the inner basin across the 08:00 boundary"),
+        _plan("launch-cross", 5964, -10500, -6000, 90, 6, [_go(-2000, -6000, 6)],
+              "crosses the exercise range under way across the 08:00 boundary"),
+        _plan("patrol-long", 0, -6000, -1500, 100, 10, patrol, "patrols the west sound all day"),
+        _plan("pilot-fast", 1500, *_PILOTS, 180, 0,
+              [_go(_S, 100, 6), _go(_S, -600, 7), Leg.speed(12, 20), Leg.straight(240),
+               Leg.speed(7, 20), _go(_S, -5000, 7), _go(8000, -13000, 15)],
+              "12 kn in the fairway on the first day"),
+        _plan("meet-west", 12600, -2000, -9200, 60, 6,
+              [_go(1000, -7500, 6), Leg.stop(until_s=15300), _go(-2500, -7000, 6),
+               _go(-2500, -16000, 6)], "meets meet-east across the 10:00 boundary"),
+        _plan("meet-east", 12500, 4500, -9000, 290, 6,
+              [_go(1000, -7600, 6), Leg.stop(until_s=15300), _go(4500, -12500, 6)],
+              "meets meet-west across the 10:00 boundary"),
+        _plan("tender-berth", 16500, *_MARINA, 80, 5,
+              [_go(1200, 300, 5), _go(_S, -500, 5), _go(2700, -150, 4), Leg.stop(60),
+               _go(2000, -1500, 5), _go(-1000, -3000, 5)],
+              "enters the naval berth on the third day"),
+    ]
+    return Scenario(name="watch-days", start_epoch_s=START_EPOCH_S, duration_s=dur,
+                    sensors=sensors, vessels=tuple(v),
+                    zones_geojson=port_calder_zones_geojson(), rules_toml=PORT_CALDER_RULES)
+
+
+#: Midnight UTC before the built-in scenarios' start: 2026-05-04T00:00:00Z.
+MIDNIGHT_EPOCH_S = 1777852800.0
+
+
+def _archive_days(seed: int, duration_s: float | None) -> Scenario:
+    """Days of ordinary traffic from midnight UTC, two radars: an archive for campaigns.
+
+    12 vessel slots, each a chain of vessels on random routes across the
+    two covers, 6 false plots per scan per radar; default 4 days.
+    """
+    dur = 4 * 86400.0 if duration_s is None else duration_s
+    a = _open_sea_sensor("archive-west", -4000, 0, max_range_m=15000.0)
+    b = _open_sea_sensor("archive-east", 4000, 0, scan_period_s=3.0, max_range_m=15000.0)
+    rng = np.random.default_rng([seed, 11])
+
+    def point() -> tuple[float, float]:
+        r = 11000.0 * math.sqrt(rng.random())
+        th = rng.uniform(0, 2 * math.pi)
+        return r * math.sin(th), r * math.cos(th)
+
+    vessels, count = [], 0
+    for slot in range(12):
+        t = -rng.uniform(0, 1800.0)
+        while t < dur:
+            e, n = point()
+            kn = float(rng.uniform(3, 14))
+            legs, length, pe, pn = [], 0.0, e, n
+            for _ in range(int(rng.integers(2, 5))):
+                we, wn = point()
+                legs.append(_go(we, wn, kn))
+                length += math.hypot(we - pe, wn - pn)
+                pe, pn = we, wn
+            count += 1
+            vessels.append(_plan(f"archive-{slot:02d}-{count:05d}", t, e, n,
+                                 float(rng.uniform(0, 360)), kn, legs))
+            t += length / (kn * 1852.0 / 3600.0) + 40.0 + rng.uniform(0, 600.0)
+    return Scenario(name="archive-days", start_epoch_s=MIDNIGHT_EPOCH_S, duration_s=dur,
+                    sensors=(SimSensor(config=a), SimSensor(config=b)), vessels=tuple(vessels),
+                    zones_geojson=port_calder_zones_geojson(), rules_toml=PORT_CALDER_RULES)
+
+
 SCENARIOS: dict[str, ScenarioSpec] = {
     s.name: s for s in (
         ScenarioSpec(name="demo", build=_demo, default_seed=20260504, default_duration_s=5400.0,
@@ -381,5 +467,11 @@ SCENARIOS: dict[str, ScenarioSpec] = {
         ScenarioSpec(name="arpa", build=_arpa, default_duration_s=1800.0,
                      description="one radar with the plotting-aid standard's sensor error "
                                  "model, six vessels on steady legs"),
+        ScenarioSpec(name="archive-days", build=_archive_days, default_duration_s=4 * 86400.0,
+                     description="4 days from midnight UTC, two radars, ~12 vessels at any "
+                                 "time: an archive for campaigns"),
+        ScenarioSpec(name="watch-days", build=_watch_days, default_duration_s=3 * 7200.0,
+                     description="three 2-hour days, two radars, vessels loitering, crossing "
+                                 "and meeting across the day boundaries"),
     )
 }

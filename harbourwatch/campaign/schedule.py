@@ -1,0 +1,138 @@
+"""Scheduling chunk tasks on dask.distributed, with a progress bar over tasks.
+
+Where the work runs, in order of precedence:
+
+1. ``--scheduler ADDRESS`` (``tcp://host:8786``): an existing cluster;
+2. dask's own configuration (``scheduler-address``, e.g. the
+   ``DASK_SCHEDULER_ADDRESS`` environment variable): an existing cluster;
+3. otherwise a ``LocalCluster`` on 127.0.0.1 sized to the machine: one
+   single-threaded worker process per usable core (the filter is Python
+   bound, so processes rather than threads), no dashboard.
+
+``executor="inline"`` runs the same tasks one after another in this process
+(the one-process baseline of the benchmark). Workers must be able to import
+harbourwatch and see the campaign's files under the same paths.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import sys
+import uuid
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
+from typing import Any, TypeVar
+
+from harbourwatch.errors import HarbourwatchError
+
+__all__ = ["Runner", "open_runner", "usable_cores"]
+
+T = TypeVar("T")
+log = logging.getLogger("harbourwatch.campaign")
+
+
+def usable_cores() -> int:
+    """Cores this process may run on."""
+    try:
+        return max(len(os.sched_getaffinity(0)), 1)
+    except AttributeError:  # pragma: no cover - not Linux
+        return max(os.cpu_count() or 1, 1)
+
+
+class Runner:
+    """Runs functions over items, on a dask client or inline; yields results as they finish."""
+
+    def __init__(self, client: Any | None, *, where: str, progress: bool) -> None:
+        self.client = client
+        self.where = where
+        self.progress = progress
+
+    def map(self, fn: Callable[[T], Any], items: Sequence[T], *, label: str,
+            names: Sequence[str]) -> Iterator[tuple[int, Any, BaseException | None]]:
+        """``(index, result, error)`` for every item, in completion order.
+
+        An error raised by ``fn`` or by the engine (a worker lost too often:
+        dask's ``KilledWorker``) is returned, never raised, so one failing
+        item does not stop the others. Dask itself moves a task whose worker
+        died to another worker (up to ``distributed.scheduler.allowed-failures``
+        times); a task that raised is tried once more (``retries=1``).
+        """
+        from tqdm import tqdm
+
+        bar = tqdm(total=len(items), desc=label, unit="chunk" if label == "chunks" else "file",
+                   file=sys.stderr, disable=not self.progress or not sys.stderr.isatty(),
+                   leave=True)
+        try:
+            if self.client is None:
+                for i, item in enumerate(items):
+                    try:
+                        yield i, fn(item), None
+                    except Exception as exc:  # reported per item
+                        yield i, None, exc
+                    bar.update(1)
+                return
+            from distributed import as_completed
+
+            tag = uuid.uuid4().hex[:8]
+            futures = {
+                self.client.submit(fn, item, key=f"hw-{label}-{name}-{tag}", retries=1,
+                                   pure=False): i
+                for i, (item, name) in enumerate(zip(items, names, strict=True))
+            }
+            for fut in as_completed(list(futures)):
+                i = futures[fut]
+                try:
+                    yield i, fut.result(), None
+                except Exception as exc:  # KilledWorker, a task error, a lost connection
+                    yield i, None, exc
+                finally:
+                    fut.release()
+                bar.update(1)
+        finally:
+            bar.close()
+
+    def workers(self) -> int:
+        """Number of workers (1 inline)."""
+        if self.client is None:
+            return 1
+        return len(self.client.scheduler_info().get("workers", {}))
+
+
+@contextmanager
+def open_runner(*, scheduler: str | None, executor: str = "dask", n_workers: int | None = None,
+                progress: bool = True) -> Iterator[Runner]:
+    """A :class:`Runner` on the chosen cluster, closed (and a local cluster stopped) afterwards."""
+    if executor == "inline":
+        yield Runner(None, where="this process, one chunk at a time", progress=progress)
+        return
+    if executor != "dask":
+        raise ValueError(f"unknown executor {executor!r}")
+    import dask
+    from distributed import Client, LocalCluster
+
+    address = scheduler or dask.config.get("scheduler-address", None)
+    cluster = None
+    try:
+        if address:
+            try:
+                client = Client(address, timeout="20s")
+            except (OSError, TimeoutError) as exc:
+                raise HarbourwatchError(f"cannot reach the dask scheduler at {address}: {exc}") from exc
+            where = f"the cluster at {address}"
+        else:
+            n = n_workers or usable_cores()
+            cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
+                                   host="127.0.0.1", dashboard_address=None,
+                                   silence_logs=logging.WARNING)
+            client = Client(cluster)
+            where = f"a local cluster of {n} worker process{'es' if n != 1 else ''}"
+        try:
+            runner = Runner(client, where=where, progress=progress)
+            log.info("running on %s (%d workers)", where, runner.workers())
+            yield runner
+        finally:
+            client.close()
+    finally:
+        if cluster is not None:
+            cluster.close()
