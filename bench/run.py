@@ -12,7 +12,9 @@ Campaign: a 4-day two-radar archive on two workers against one process
 
 Set ``BENCH_HOURS`` to shorten the throughput feed (default 6) and
 ``BENCH_RUNS`` for the number of timed runs (default 2; the slowest counts).
-Last, the input-contract fuzzing harness (``tests/fuzz_contract.py``) on
+Then peak memory and wall time against the feed's length (``bench/memory.py``:
+6 h and 24 h, 7 days with ``BENCH_WEEK=1``). Last, the input-contract fuzzing
+harness (``tests/fuzz_contract.py``) on
 ``BENCH_FUZZ_EXAMPLES`` random cases (default 500).
 """
 
@@ -123,12 +125,13 @@ def fuzz() -> None:
 
 def main() -> None:
     OUT.mkdir(parents=True, exist_ok=True)
-    from bench import accuracy, bench_score, campaign, large_vessels
+    from bench import accuracy, bench_score, campaign, large_vessels, memory
 
     accuracy.main()
     bench_score.main()
     large_vessels.main()
     throughput()
+    memory.main()
     campaign.main()
     fuzz()
 

@@ -426,3 +426,89 @@ def test_node_store_compaction_changes_nothing(monkeypatch):
         assert a.end_probability == b.end_probability
     for name in ("time", "track", "mean", "sd", "existence"):
         assert np.array_equal(getattr(plain.as_seen, name), getattr(squeezed.as_seen, name))
+
+
+def test_outage_of_one_radar_during_a_burst_on_the_other_breaks_no_track():
+    # issue 14: radar B silent for ten minutes while a squall of 500 false plots per scan
+    # hits radar A for 30 s in the middle of the traffic; every vessel radar A still sees
+    # must come out as one trajectory throughout (its plots in a single trajectory)
+    vessels = [
+        Vessel(0.0, 1500.0, (-3000.0 + 800.0 * k, -2500.0 + 300.0 * (k % 3)), (2.0, 3.0))
+        for k in range(8)
+    ]
+    radars = [
+        Radar(
+            site=(-2000.0, 0.0),
+            period=2.5,
+            clutter_per_scan=15.0,
+            bursts={k: (500, (-500.0, -500.0), 1500.0) for k in range(240, 252)},
+        ),  # scans 240..251: t = 600 .. 630 s, during the outage of radar B
+        Radar(
+            site=(2000.0, 0.0),
+            period=3.0,
+            offset=1.1,
+            clutter_per_scan=15.0,
+            silent=[(300.0, 900.0)],
+        ),  # ten minutes without scans
+    ]
+    feed = make_feed(vessels, radars, 1500.0, seed=8)
+    out = run_filter(feed.scans, feed.sensors, FilterSettings())
+    pur = _check_identities(out, feed, len(vessels))
+    assert all(len(p) == 1 for p in pur), pur
+    assert len(out.trajectories) == len(vessels)
+
+
+def test_estimating_finished_clusters_early_changes_nothing_and_frees_their_nodes(monkeypatch):
+    # a cluster whose hypotheses have all ended is estimated when it is finished (so that
+    # its nodes can be freed): byte-identical to estimating it at the end of the feed
+    vessels = [
+        Vessel(0.0, 200.0, (-1500.0, -500.0), (5.0, 1.0)),  # stops at 200 s
+        Vessel(100.0, 400.0, (1000.0, 1000.0), (-3.0, -3.0)),  # 100 .. 400 s
+        Vessel(0.0, 900.0, (-2000.0, 1500.0), (3.0, -1.0)),  # to the end
+        Vessel(0.0, 900.0, (2500.0, 0.0), (6.0, 0.0)),  # leaves the cover at 250 s
+    ]
+    radar = Radar(site=(0.0, 0.0), max_range=4000.0, clutter_per_scan=15.0)
+    feed = make_feed(vessels, [radar], 900.0, seed=6)
+    from harbourwatch.filter import _estimate
+    from harbourwatch.filter._nodes import NodeStore
+
+    monkeypatch.setattr(tpmbm, "_COMPACT_MIN", 64)
+    monkeypatch.setattr(tpmbm, "NodeStore", lambda: NodeStore(capacity=128))
+    early_pieces = []
+    real = _estimate.estimate_retired
+
+    def spy(*args, **kw):
+        pieces, waiting = real(*args, **kw)
+        early_pieces.extend(pieces)
+        return pieces, waiting
+
+    monkeypatch.setattr(_estimate, "estimate_retired", spy)
+    early = run_filter(feed.scans, feed.sensors, FilterSettings())
+    held_early = _nodes_held(feed)
+    monkeypatch.setattr(_estimate, "estimate_retired", lambda retired, *a, **k: ([], list(retired)))
+    late = run_filter(feed.scans, feed.sensors, FilterSettings())
+    assert len(early_pieces) >= 2  # vessels that ended were estimated early
+    assert held_early < _nodes_held(feed)  # and no hypothesis holds their chains any more
+    assert [t.id for t in early.trajectories] == [t.id for t in late.trajectories]
+    for a, b in zip(early.trajectories, late.trajectories, strict=True):
+        for name in ("time", "mean", "cov", "filt_mean", "filt_cov", "pred_mean", "pred_cov",
+                     "plot_ids", "sensor_ids"):
+            assert np.array_equal(getattr(a, name), getattr(b, name)), name
+        assert (a.existence, a.end_probability, a.alive_at_end) == (
+            b.existence, b.end_probability, b.alive_at_end)
+    for name in ("time", "track", "mean", "sd", "existence"):
+        assert np.array_equal(getattr(early.as_seen, name), getattr(late.as_seen, name))
+    assert early.stats["plots_in_trajectories"] == late.stats["plots_in_trajectories"]
+
+
+def _nodes_held(feed):
+    """Nodes reachable from the filter's hypotheses after the last scan (what compaction keeps)."""
+    from harbourwatch.filter._kernels import reachable
+
+    filt = _Filter(feed.sensors, FilterSettings(), ())
+    for k, scan in enumerate(sorted(feed.scans, key=lambda sc: (float(sc.time), sc.sensor))):
+        filt.process(scan, k)
+    lhs = [lh for c in filt.retired + filt.clusters for b in c.berns for lh in b.lhs]
+    live = [lh.node for lh in lhs] + [n for lh in lhs for n in lh.end_nodes]
+    keep = reachable(filt.nodes.parent, filt.nodes.n, np.array(live, np.int64))
+    return int(np.count_nonzero(keep))

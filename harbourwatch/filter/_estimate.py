@@ -55,59 +55,127 @@ class FilterEnd:
 
     settings: FilterSettings
     nodes: NodeStore
-    clusters: Sequence[Cluster]  # retired ones first, then the live ones
+    clusters: Sequence[Cluster]  # not yet estimated: retired ones first, then the live ones
+    finished: Sequence[Piece]  # estimated when their clusters were finished
     last_time: float
     as_seen: Sequence[AsSeenRows]
     stats: dict[str, Any]
     log: Iterable[str]
 
 
+class Piece(NamedTuple):
+    """One estimated trajectory before its id is given (ids follow the order of all of them)."""
+
+    start: float
+    east: float
+    bid: int
+    arrays: tuple[NDArray[Any], ...]  # time, smoothed, filtered, predicted moments, plots, sensors
+    existence: float
+    end_probability: float
+    alive_at_end: bool
+    extent: tuple[float, ...] | None
+
+
+def cluster_pieces(c: Cluster, nodes: NodeStore, st: FilterSettings, last_scan: float) -> list[Piece]:
+    """The trajectories of one cluster's best global hypothesis, RTS-smoothed (§1.8, §6.3).
+
+    Depends on the rest of the run only through ``last_scan``, the time of the
+    last scan; for a cluster whose hypotheses are all frozen and whose nodes
+    are all older than ``last_scan - as_seen_window_s`` it gives the same
+    pieces at any later ``last_scan`` (see :func:`estimate_retired`).
+    """
+    out: list[Piece] = []
+    row = c.table[int(np.argmax(c.logw))]
+    for b, h in zip(c.berns, row, strict=True):
+        if h < 0:
+            continue
+        lh = b.lhs[h]
+        if lh.r <= st.existence_threshold:
+            continue
+        end_node, end_p, is_alive = lh.best_end()
+        if (is_alive or (lh.coasted and end_node == lh.node)) and (
+            nodes.t[end_node] < last_scan - st.as_seen_window_s
+        ):
+            # last seen well before the end of the feed (left the cover, or its radars
+            # went silent): it was last known at its last plot, not at the missed
+            # detections that followed while it was predicted inside a cover
+            while nodes.plot[end_node] < 0 and nodes.parent[end_node] >= 0:
+                end_node = int(nodes.parent[end_node])
+        idx = nodes.chain(end_node)
+        if lh.ext is not None and int((nodes.plot[idx] >= 0).sum()) < MIN_EXTENDED_DETECTIONS:
+            continue  # an unconfirmed extended vessel: a fragment of a hull, not a ship
+        t, fm, fP, pm, pP = nodes.moments(idx)
+        ms, Ps = rts_smooth_chain(t, fm, fP, pm, pP)
+        out.append(
+            Piece(
+                start=float(nodes.t[idx[0]]),
+                east=float(nodes.m[idx[0], 0]),
+                bid=b.bid,
+                arrays=(t, ms, Ps, fm, fP, pm, pP, nodes.plot[idx].copy(), nodes.sensor[idx].copy()),
+                existence=float(lh.r),
+                end_probability=float(end_p),
+                alive_at_end=bool(
+                    is_alive and not lh.frozen and t[-1] >= last_scan - st.as_seen_window_s
+                ),
+                extent=lh.ext,
+            )
+        )
+    return out
+
+
+def estimate_retired(
+    retired: Sequence[Cluster], nodes: NodeStore, st: FilterSettings, last_scan: float
+) -> tuple[list[Piece], list[Cluster]]:
+    """Estimate the retired clusters that nothing can change any more.
+
+    A retired cluster (every local hypothesis frozen) is independent of the
+    rest, and its estimate depends on the feed's end only through the time of
+    the last scan (is it last seen within ``as_seen_window_s`` of it?). Once
+    all its nodes are older than that window, :func:`cluster_pieces` gives
+    now what it would give at the end.
+
+    Returns
+    -------
+    pieces, waiting
+        The smoothed trajectories of the clusters estimated, and the clusters
+        kept for later.
+    """
+    horizon = last_scan - st.as_seen_window_s
+    t = nodes.t
+    pieces: list[Piece] = []
+    waiting: list[Cluster] = []
+    for c in retired:
+        latest = max(
+            (
+                max(t[lh.node], max(t[list(lh.end_nodes)]) if lh.end_nodes else -np.inf)
+                for b in c.berns
+                for lh in b.lhs
+            ),
+            default=-np.inf,
+        )
+        if latest < horizon:
+            pieces.extend(cluster_pieces(c, nodes, st, last_scan))
+        else:
+            waiting.append(c)
+    return pieces, waiting
+
+
 def build_output(end: FilterEnd) -> FilterOutput:
     """The estimated set of all trajectories and the as-seen table (estimator of §1.8)."""
     st = end.settings
     nodes = end.nodes
-    last_scan = end.last_time
-    chosen: list[tuple[float, float, int, Any]] = []
+    chosen = list(end.finished)
     for c in end.clusters:
-        row = c.table[int(np.argmax(c.logw))]
-        for b, h in zip(c.berns, row, strict=True):
-            if h < 0:
-                continue
-            lh = b.lhs[h]
-            if lh.r <= st.existence_threshold:
-                continue
-            end_node, end_p, is_alive = lh.best_end()
-            if (is_alive or (lh.coasted and end_node == lh.node)) and (
-                nodes.t[end_node] < last_scan - st.as_seen_window_s
-            ):
-                # last seen well before the end of the feed (left the cover, or its radars
-                # went silent): it was last known at its last plot, not at the missed
-                # detections that followed while it was predicted inside a cover
-                while nodes.plot[end_node] < 0 and nodes.parent[end_node] >= 0:
-                    end_node = int(nodes.parent[end_node])
-            idx = nodes.chain(end_node)
-            if lh.ext is not None and int((nodes.plot[idx] >= 0).sum()) < MIN_EXTENDED_DETECTIONS:
-                continue  # an unconfirmed extended vessel: a fragment of a hull, not a ship
-            chosen.append(
-                (
-                    float(nodes.t[idx[0]]),
-                    float(nodes.m[idx[0], 0]),
-                    b.bid,
-                    (lh, idx, end_p, is_alive),
-                )
-            )
-    chosen.sort(key=lambda x: (x[0], x[1], x[2]))
+        chosen.extend(cluster_pieces(c, nodes, st, end.last_time))
+    chosen.sort(key=lambda x: (x.start, x.east, x.bid))
     trajectories: list[Trajectory] = []
     ids: dict[int, str] = {}
     used_plots = 0
-    for k, (_, _, bid, (lh, idx, end_p, is_alive)) in enumerate(chosen):
+    for k, piece in enumerate(chosen):
         tid = f"T{k + 1}"
-        ids[bid] = tid
-        t, fm, fP, pm, pP = nodes.moments(idx)
-        ms, Ps = rts_smooth_chain(t, fm, fP, pm, pP)
-        plots = nodes.plot[idx].copy()
+        ids[piece.bid] = tid
+        t, ms, Ps, fm, fP, pm, pP, plots, sensors = piece.arrays
         used_plots += int((plots >= 0).sum())
-        alive_at_end = bool(is_alive and not lh.frozen and t[-1] >= last_scan - st.as_seen_window_s)
         trajectories.append(
             Trajectory(
                 id=tid,
@@ -118,14 +186,15 @@ def build_output(end: FilterEnd) -> FilterOutput:
                 filt_cov=fP,
                 pred_mean=pm,
                 pred_cov=pP,
-                existence=float(lh.r),
-                end_probability=float(end_p),
-                alive_at_end=alive_at_end,
+                existence=piece.existence,
+                end_probability=piece.end_probability,
+                alive_at_end=piece.alive_at_end,
                 plot_ids=plots,
-                sensor_ids=nodes.sensor[idx].copy(),
-                extent=lh.ext,
+                sensor_ids=sensors,
+                extent=piece.extent,
             )
         )
+    chosen.clear()
     if end.as_seen:
         tt = np.concatenate([np.full(r.bids.size, r.time) for r in end.as_seen])
         bids = np.concatenate([r.bids for r in end.as_seen])

@@ -60,6 +60,7 @@ from collections.abc import Callable, Sequence
 import numpy as np
 from numpy.typing import NDArray
 
+from harbourwatch.filter import _estimate as est
 from harbourwatch.filter._association import (
     ScanContext,
     prune,
@@ -142,7 +143,8 @@ class _Filter:
         self.nodes = NodeStore()
         self.clutter_map = ClutterMap()
         self.clusters: list[Cluster] = []
-        self.retired: list[Cluster] = []  # every local hypothesis frozen
+        self.retired: list[Cluster] = []  # every local hypothesis frozen, not yet estimated
+        self.finished: list[est.Piece] = []  # trajectories of retired clusters, estimated
         self.next_bid = 0
         self.caps: dict[str, int] = defaultdict(int)
         self.log: list[str] = []
@@ -364,6 +366,9 @@ class _Filter:
         if scan_index % 64 == 0:  # clusters whose hypotheses have all ended never change again
             self.retired.extend(c for c in self.clusters if _finished(c))
             self.clusters = [c for c in self.clusters if not _finished(c)]
+            # estimate those nothing can change any more, so that compaction frees their nodes
+            done, self.retired = est.estimate_retired(self.retired, self.nodes, st, self.last_time)
+            self.finished.extend(done)
         self.timers["associate"] += _time.perf_counter() - t0
 
         t0 = _time.perf_counter()
@@ -434,6 +439,7 @@ def run_tpmbm(
             settings=filt.settings,
             nodes=filt.nodes,
             clusters=filt.retired + filt.clusters,
+            finished=filt.finished,
             last_time=filt.last_time,
             as_seen=filt.as_seen,
             stats={

@@ -1,0 +1,66 @@
+"""Peak memory and wall time of one review run against the length of the feed.
+
+The 'bench' scenario (two radars, about 40 vessels present at a time, 15
+false plots per scan per radar) simulated for 6 h and 24 h (and 7 days with
+``BENCH_WEEK=1``), each reviewed by ``python -m harbourwatch run --quiet``
+in its own child process; the child's peak resident set (``wait4`` rusage)
+and wall time are printed, with the ratio 24 h / 6 h of the peaks (target
+at most 1.2). ``BENCH_MEMORY_HOURS`` (comma-separated) overrides the lengths.
+"""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+OUT = Path(os.environ.get("BENCH_OUT", "bench_out"))
+
+
+def _line(label: str, value: str) -> None:
+    print(f"  {label:<34s} {value}")
+
+
+def measure(hours: float) -> tuple[float, float]:
+    """Simulate ``hours`` of the 'bench' scenario, review it; return (peak MB, wall s)."""
+    from harbourwatch import simulate_to_dir
+
+    feed_dir = OUT / f"memory_{hours:g}h"
+    files = simulate_to_dir("bench", feed_dir, duration_s=hours * 3600.0, feed_format="csv.gz")
+    feed = next(p for p in files if p.name.startswith("plots"))
+    cmd = [sys.executable, "-m", "harbourwatch", "run", str(feed), "--sensors",
+           str(feed_dir / "sensors.toml"), "--zones", str(feed_dir / "zones.geojson"),
+           "--rules", str(feed_dir / "rules.toml"), "--out", str(feed_dir / "run"), "--quiet"]
+    t = time.perf_counter()
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(proc.pid, 0)  # this child's own rusage, not every child's
+    wall = time.perf_counter() - t
+    err = proc.stderr.read().decode(errors="replace") if proc.stderr else ""
+    if status != 0:
+        raise SystemExit(f"{hours:g} h run failed (status {status}): {err[-2000:]}")
+    return usage.ru_maxrss / 1024.0, wall  # ru_maxrss is in KiB on Linux
+
+
+def main() -> None:
+    from harbourwatch import warm_up
+
+    warm_up()
+    default = "6,24,168" if os.environ.get("BENCH_WEEK") == "1" else "6,24"
+    hours = [float(h) for h in os.environ.get("BENCH_MEMORY_HOURS", default).split(",")]
+    print("== memory against feed length: scenario 'bench', one `run` per length")
+    peaks: dict[float, float] = {}
+    for h in hours:
+        peak, wall = measure(h)
+        peaks[h] = peak
+        _line(f"{h:g} h feed: peak RSS / wall", f"{peak:.0f} MB / {wall:.0f} s")
+    if 6.0 in peaks and 24.0 in peaks:
+        _line("peak ratio 24 h / 6 h", f"{peaks[24.0] / peaks[6.0]:.2f} (target <= 1.2)")
+    if 168.0 not in peaks:
+        _line("7-day feed", "not run (BENCH_WEEK=1 runs it)")
+
+
+if __name__ == "__main__":
+    OUT.mkdir(parents=True, exist_ok=True)
+    main()
