@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -112,8 +113,8 @@ def _concat(a: tuple, b: tuple) -> tuple:  # type: ignore[type-arg]
     return tuple(np.concatenate([x, y]) for x, y in zip(a, b, strict=True))
 
 
-def extended_scan(motion, gate, leaf, pm, pP, tmiss, pd, slot_ext, z, R, tj, ids,  # type: ignore[no-untyped-def]
-                  std_pairs, slot_bern) -> ExtendedScan:
+def extended_scan(motion: Any, gate: Any, leaf: Any, pm: Any, pP: Any, tmiss: Any, pd: Any, slot_ext: Any, z: Any, R: Any, tj: Any, ids: Any,
+                  std_pairs: Any, slot_bern: Any) -> ExtendedScan:
     """Extended pairs, cells and their new-vessel terms for one scan (see the module note).
 
     ``leaf`` is ``(mm, mP, mu, t_leaf)`` per slot; ``pm, pP, tmiss`` the

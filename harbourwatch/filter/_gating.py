@@ -8,6 +8,8 @@ small (``_kernels.gate_candidates``).
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 from numpy.typing import NDArray
 from scipy.special import chdtri, ndtr
@@ -50,9 +52,9 @@ def chi2_gate(gate_probability: float, dim: int = 2) -> float:
 MIN_STEP_S = 1e-3
 
 
-def gate_pairs(  # type: ignore[no-untyped-def]
-    gate, motion, leaf_mm, leaf_mP, leaf_mu, pd, t_leaf, z, R, tj
-):
+def gate_pairs(
+    gate: Any, motion: Any, leaf_mm: Any, leaf_mP: Any, leaf_mu: Any, pd: Any, t_leaf: Any, z: Any, R: Any, tj: Any
+) -> Any:
     """Gated pairs ``(i, j, log-lik, node time, merged mean, merged cov, mode means,
     mode covs, mode probabilities)``.
 

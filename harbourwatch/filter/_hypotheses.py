@@ -18,6 +18,7 @@ share a last state, so scans in which a vessel is outside the cover (``p_D =
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
 
@@ -79,7 +80,7 @@ def step_and_miss(
     return r * norm / w_miss, al * (1.0 - p_detect) / norm, tuple([p / norm for p in endp])
 
 
-def detection_log_weight(r, alive, p_detect, log_lik):  # type: ignore[no-untyped-def]
+def detection_log_weight(r: Any, alive: Any, p_detect: Any, log_lik: Any) -> Any:
     """``ln(r p_D β_alive N(z; H m⁻, S))`` (methods note §1.4); works on arrays too."""
     return np.log(np.maximum(r * p_detect * alive, 1e-300)) + log_lik
 
@@ -159,7 +160,7 @@ class Cluster:
 
     __slots__ = ("berns", "table", "logw")
 
-    def __init__(self, berns: list[Bernoulli], table, logw) -> None:  # type: ignore[no-untyped-def]
+    def __init__(self, berns: list[Bernoulli], table: Any, logw: Any) -> None:
         self.berns = berns
         self.table = table
         self.logw = logw

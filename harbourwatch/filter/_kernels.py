@@ -38,7 +38,7 @@ def _compiled(fn: F) -> F:
 
 
 @_compiled
-def _mix_predict_one(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi, pm, pP, c):  # type: ignore[no-untyped-def]
+def _mix_predict_one(mm: Any, mP: Any, mu: Any, dt: Any, q: Any, rate_up: Any, rate_down: Any, pi_hi: Any, pm: Any, pP: Any, c: Any) -> Any:
     """IMM mixing and per-mode CV prediction of one hypothesis, written into ``pm, pP, c``."""
     s = 1.0 - math.exp(-(rate_up + rate_down) * dt)
     p01 = pi_hi * s
@@ -87,7 +87,7 @@ def _mix_predict_one(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi, pm, pP, c):  
 
 
 @_compiled
-def _merge_one(mm, mP, w, m, P):  # type: ignore[no-untyped-def]
+def _merge_one(mm: Any, mP: Any, w: Any, m: Any, P: Any) -> Any:
     """Moment-matched merge of two per-mode Gaussians with weights ``w`` into ``m, P``."""
     for r in range(4):
         m[r] = w[0] * mm[0, r] + w[1] * mm[1, r]
@@ -106,7 +106,7 @@ def _merge_one(mm, mP, w, m, P):  # type: ignore[no-untyped-def]
 
 
 @_compiled
-def imm_predict(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi):  # type: ignore[no-untyped-def]
+def imm_predict(mm: Any, mP: Any, mu: Any, dt: Any, q: Any, rate_up: Any, rate_down: Any, pi_hi: Any) -> Any:
     """Prediction without a plot for ``n`` hypotheses.
 
     Returns per-mode means ``(n, 2, 4)`` and covariances ``(n, 2, 4, 4)``,
@@ -125,7 +125,7 @@ def imm_predict(mm, mP, mu, dt, q, rate_up, rate_down, pi_hi):  # type: ignore[n
 
 
 @_compiled
-def gate_candidates(act, mm, mP, t_leaf, q_max, z, R, tj, gate, min_step):  # type: ignore[no-untyped-def]
+def gate_candidates(act: Any, mm: Any, mP: Any, t_leaf: Any, q_max: Any, z: Any, R: Any, tj: Any, gate: Any, min_step: Any) -> Any:
     """Pre-filter of (hypothesis, plot) pairs that provably keeps every pair inside the gate.
 
     For a pair, the exact test (:func:`imm_gate_update`) mixes the leaf's two
@@ -174,9 +174,9 @@ def gate_candidates(act, mm, mP, t_leaf, q_max, z, R, tj, gate, min_step):  # ty
 
 
 @_compiled
-def imm_gate_update(  # type: ignore[no-untyped-def]
-    mm, mP, mu, t_leaf, ii, jj, tj, z, R, q, rate_up, rate_down, pi_hi, gate, min_step
-):
+def imm_gate_update(
+    mm: Any, mP: Any, mu: Any, t_leaf: Any, ii: Any, jj: Any, tj: Any, z: Any, R: Any, q: Any, rate_up: Any, rate_down: Any, pi_hi: Any, gate: Any, min_step: Any
+) -> Any:
     """Score candidate (hypothesis ``ii``, plot ``jj``) pairs and update those inside the gate.
 
     Each leaf ``i`` is predicted to the plot's own time (at least
@@ -278,7 +278,7 @@ def imm_gate_update(  # type: ignore[no-untyped-def]
 
 
 @_compiled
-def rts_smooth_chain(t, fm, fP, pm, pP):  # type: ignore[no-untyped-def]
+def rts_smooth_chain(t: Any, fm: Any, fP: Any, pm: Any, pP: Any) -> Any:
     """Rauch-Tung-Striebel smoother along one chain of the CV model.
 
     Same equations as :func:`harbourwatch.models.gaussian.rts_smooth` (the
@@ -357,10 +357,10 @@ def rts_smooth_chain(t, fm, fP, pm, pP):  # type: ignore[no-untyped-def]
 
 
 @_compiled
-def write_nodes(  # type: ignore[no-untyped-def]
-    store, start, kinds, src, par, sensor, q, mu_new,
-    miss, det, pair_plot, plot_ids, plot_time, z, R, var_v,
-):
+def write_nodes(
+    store: Any, start: Any, kinds: Any, src: Any, par: Any, sensor: Any, q: Any, mu_new: Any,
+    miss: Any, det: Any, pair_plot: Any, plot_ids: Any, plot_time: Any, z: Any, R: Any, var_v: Any,
+) -> Any:
     """Write a scan's pending nodes into the store's columns from row ``start`` on.
 
     ``store`` is ``(t, parent, plot, sensor, m, P, mm, mP, mu, qin)``.
@@ -416,7 +416,7 @@ def write_nodes(  # type: ignore[no-untyped-def]
 
 
 @_compiled
-def reachable(parent, n, live):  # type: ignore[no-untyped-def]
+def reachable(parent: Any, n: Any, live: Any) -> Any:
     """Nodes ``0..n-1`` reachable from ``live`` by parent links.
 
     Relies on every parent having a smaller index than its child (nodes are

@@ -56,6 +56,7 @@ import math
 import time as _time
 from collections import defaultdict
 from collections.abc import Callable, Sequence
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -380,7 +381,7 @@ class _Filter:
         compact_nodes(self.nodes, self.retired + self.clusters, _COMPACT_MIN)
         self.timers["bookkeeping"] += _time.perf_counter() - t0
 
-    def _flush_nodes(self, maker, pm, pP, tmiss, stamp, m_upd, P_upd, z, R, scan, ids, tj):  # type: ignore[no-untyped-def]
+    def _flush_nodes(self, maker: Any, pm: Any, pP: Any, tmiss: Any, stamp: Any, m_upd: Any, P_upd: Any, z: Any, R: Any, scan: Any, ids: Any, tj: Any) -> Any:
         """Write the scan's queued nodes in one compiled pass (see ``_kernels.write_nodes``).
 
         A missed detection carries the predicted per-mode moments, a
