@@ -7,25 +7,24 @@ touches the output folder; every output file is written atomically.
 from __future__ import annotations
 
 import json
-import platform
 import time
 from collections.abc import Callable, Sequence
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import dataclass, field, replace
 from os import PathLike
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from harbourwatch import __version__
 from harbourwatch.filter import FilterOutput, run_filter
-from harbourwatch.io.atomic import atomic_write_text, sha256_file
+from harbourwatch.io.atomic import atomic_write_text
 from harbourwatch.io.inputs import RunInputs
 from harbourwatch.io.outdir import check_out_folder, run_folder
 from harbourwatch.io.records import FilterSettings
 from harbourwatch.io.timefmt import format_utc_one
 from harbourwatch.progress import RunProgress
+from harbourwatch.report.provenance import run_record
 from harbourwatch.rules.evaluate import (
     RULE_SCHEMAS,
     Alert,
@@ -35,7 +34,6 @@ from harbourwatch.rules.evaluate import (
 )
 from harbourwatch.scene.build import LocalScene, into_local_frame
 from harbourwatch.scene.checks import clutter_warnings
-from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.trajectories import (
     TrajectorySet,
     as_seen_csv_text,
@@ -89,90 +87,6 @@ class RunSummary:
         lines += [f"warning         {w}" for w in self.warnings]
         lines += ["", self.alerts_text or "no alerts", "", CAUTION]
         return "\n".join(lines)
-
-
-def _versions() -> dict[str, str]:
-    import folium
-    import numba
-    import pyproj
-    import scipy
-    import shapely
-
-    return {
-        "harbourwatch": __version__,
-        "python": platform.python_version(),
-        "numpy": np.__version__,
-        "scipy": scipy.__version__,
-        "shapely": shapely.__version__,
-        "pyproj": pyproj.__version__,
-        "folium": folium.__version__,
-        "numba": numba.__version__,
-    }
-
-
-def _provenance(
-    inp: RunInputs,
-    feeds: Sequence[PathArg],
-    *,
-    sensors: PathArg,
-    zones: PathArg,
-    rules: PathArg,
-    settings: FilterSettings,
-    seed: int,
-    tile_url: str | None,
-    frame: LocalFrame,
-    tset: TrajectorySet,
-    alerts: Sequence[Alert],
-    fout: FilterOutput,
-    timings: dict[str, float],
-    warnings: Sequence[str] = (),
-) -> dict[str, Any]:
-    """run.json's content: software, inputs with checksums, parameters, results, timings."""
-    plots_used = int(sum(int(np.count_nonzero(tr.plot_ids >= 0)) for tr in tset))
-
-    def digest(p: PathArg) -> str:  # taken while reading: inputs are read once (FIFOs work)
-        return inp.checksums.get(str(p)) or sha256_file(p)
-
-    return {
-        "software": _versions(),
-        "caution": CAUTION,
-        "inputs": {
-            "feeds": [{"path": str(p), "sha256": digest(p)} for p in feeds],
-            "sensors": {"path": str(sensors), "sha256": digest(sensors)},
-            "zones": {"path": str(zones), "sha256": digest(zones)},
-            "rules": {"path": str(rules), "sha256": digest(rules)},
-        },
-        "parameters": {
-            "filter": asdict(settings),
-            "seed": seed,
-            "tile_url": tile_url,
-            "sensors": [asdict(s) for s in inp.sensors],
-            "rules": [
-                {"id": r.id, "kind": r.kind, "zone": r.zone, "min_probability": r.min_probability,
-                 **dict(r.params)}
-                for r in inp.rules
-            ],
-            "frame": {"projection": "azimuthal equidistant (WGS84)",
-                      "lat0_deg": frame.lat0_deg, "lon0_deg": frame.lon0_deg},
-        },
-        "feed": {
-            "start": format_utc_one(tset.feed_start) if len(inp.plots) else None,
-            "end": format_utc_one(tset.feed_end) if len(inp.plots) else None,
-            "plots": len(inp.plots),
-            "duplicates_dropped": inp.plots.duplicates_dropped,
-            "scans": len(inp.scans),
-        },
-        "results": {
-            "trajectories": len(tset),
-            "present_at_end": sum(1 for tr in tset if tr.alive_at_end),
-            "alerts": len(alerts),
-            "plots_in_trajectories": plots_used,
-        },
-        "filter_stats": _jsonable(fout.stats),
-        "filter_log": list(fout.log),
-        "warnings": list(warnings),
-        "timings": timings,
-    }
 
 
 def _write_trajectory_tables(out_dir: Path, tset: TrajectorySet, progress: Callback) -> float:
@@ -314,7 +228,7 @@ def _review_into(req: _Request, inp: RunInputs, out_dir: Path, bars: RunProgress
     tables = pool.submit(_write_trajectory_tables, out_dir, tset, bars.stage("tables") or _quiet)
     try:
         alerts = _apply_rules(req, inp, scene, tset, out_dir, bars, timings)
-        provenance = _provenance(
+        provenance = run_record(
             inp, req.feeds, sensors=req.sensors, zones=req.zones, rules=req.rules,
             settings=req.settings, seed=req.seed, tile_url=req.tile_url, frame=scene.frame,
             tset=tset, alerts=alerts, fout=fout, timings=timings, warnings=warnings,
@@ -449,18 +363,6 @@ def run_review(
 
     display_zone(display_tz)  # an unknown zone fails here, before any work
     return _review(req, progress=progress)
-
-
-def _jsonable(obj: Any) -> Any:
-    if isinstance(obj, dict):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, list | tuple):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, np.generic):
-        return obj.item()
-    if isinstance(obj, np.ndarray):
-        return obj.tolist()
-    return obj
 
 
 def demo_paths() -> dict[str, Path]:
