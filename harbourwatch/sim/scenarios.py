@@ -325,37 +325,48 @@ def _arpa(seed: int, duration_s: float | None) -> Scenario:
                     sensors=(SimSensor(config=s, noise="arpa"),), vessels=tuple(vessels))
 
 
-def _bench(seed: int, duration_s: float | None) -> Scenario:
-    """About 40 vessels at any time: 40 slots, each a chain of vessels with random routes."""
-    dur = 6 * 3600.0 if duration_s is None else duration_s
-    a = _open_sea_sensor("bench-west", -4000, 0, false_plots_per_scan=15.0, max_range_m=15000.0)
-    b = _open_sea_sensor("bench-east", 4000, 0, scan_period_s=3.0, false_plots_per_scan=15.0,
-                         max_range_m=15000.0)
-    rng = np.random.default_rng([seed, 7])
-    vessels = []
+def _route_chains(rng: np.random.Generator, *, slots: int, duration_s: float, prefix: str,
+                  digits: int, pause_s: float) -> list[VesselPlan]:
+    """Vessels on random routes within 11 km of the origin, ``slots`` chains of them.
+
+    Each slot is a chain: a vessel sails 2-4 legs at 3-14 kn between random
+    points, and the next one appears 40 s plus up to ``pause_s`` after it would
+    have finished, until ``duration_s``.
+    """
 
     def point() -> tuple[float, float]:
         r = 11000.0 * math.sqrt(rng.random())
         th = rng.uniform(0, 2 * math.pi)
         return r * math.sin(th), r * math.cos(th)
 
+    vessels: list[VesselPlan] = []
     count = 0
-    for slot in range(40):
+    for slot in range(slots):
         t = -rng.uniform(0, 1800.0)
-        while t < dur:
+        while t < duration_s:
             e, n = point()
             kn = float(rng.uniform(3, 14))
-            legs, length = [], 0.0
-            pe, pn = e, n
+            legs, length, pe, pn = [], 0.0, e, n
             for _ in range(int(rng.integers(2, 5))):
                 we, wn = point()
                 legs.append(_go(we, wn, kn))
                 length += math.hypot(we - pe, wn - pn)
                 pe, pn = we, wn
             count += 1
-            vessels.append(_plan(f"bench-{slot:02d}-{count:04d}", t, e, n,
+            vessels.append(_plan(f"{prefix}-{slot:02d}-{count:0{digits}d}", t, e, n,
                                  float(rng.uniform(0, 360)), kn, legs))
-            t += length / (kn * 1852.0 / 3600.0) + 40.0 + rng.uniform(0, 60.0)
+            t += length / (kn * 1852.0 / 3600.0) + 40.0 + rng.uniform(0, pause_s)
+    return vessels
+
+
+def _bench(seed: int, duration_s: float | None) -> Scenario:
+    """About 40 vessels at any time: 40 slots, each a chain of vessels with random routes."""
+    dur = 6 * 3600.0 if duration_s is None else duration_s
+    a = _open_sea_sensor("bench-west", -4000, 0, false_plots_per_scan=15.0, max_range_m=15000.0)
+    b = _open_sea_sensor("bench-east", 4000, 0, scan_period_s=3.0, false_plots_per_scan=15.0,
+                         max_range_m=15000.0)
+    vessels = _route_chains(np.random.default_rng([seed, 7]), slots=40, duration_s=dur,
+                            prefix="bench", digits=4, pause_s=60.0)
     return Scenario(name="bench", start_epoch_s=START_EPOCH_S, duration_s=dur,
                     sensors=(SimSensor(config=a), SimSensor(config=b)), vessels=tuple(vessels),
                     zones_geojson=port_calder_zones_geojson(), rules_toml=PORT_CALDER_RULES)
@@ -419,29 +430,8 @@ def _archive_days(seed: int, duration_s: float | None) -> Scenario:
     dur = 4 * 86400.0 if duration_s is None else duration_s
     a = _open_sea_sensor("archive-west", -4000, 0, max_range_m=15000.0)
     b = _open_sea_sensor("archive-east", 4000, 0, scan_period_s=3.0, max_range_m=15000.0)
-    rng = np.random.default_rng([seed, 11])
-
-    def point() -> tuple[float, float]:
-        r = 11000.0 * math.sqrt(rng.random())
-        th = rng.uniform(0, 2 * math.pi)
-        return r * math.sin(th), r * math.cos(th)
-
-    vessels, count = [], 0
-    for slot in range(12):
-        t = -rng.uniform(0, 1800.0)
-        while t < dur:
-            e, n = point()
-            kn = float(rng.uniform(3, 14))
-            legs, length, pe, pn = [], 0.0, e, n
-            for _ in range(int(rng.integers(2, 5))):
-                we, wn = point()
-                legs.append(_go(we, wn, kn))
-                length += math.hypot(we - pe, wn - pn)
-                pe, pn = we, wn
-            count += 1
-            vessels.append(_plan(f"archive-{slot:02d}-{count:05d}", t, e, n,
-                                 float(rng.uniform(0, 360)), kn, legs))
-            t += length / (kn * 1852.0 / 3600.0) + 40.0 + rng.uniform(0, 600.0)
+    vessels = _route_chains(np.random.default_rng([seed, 11]), slots=12, duration_s=dur,
+                            prefix="archive", digits=5, pause_s=600.0)
     return Scenario(name="archive-days", start_epoch_s=MIDNIGHT_EPOCH_S, duration_s=dur,
                     sensors=(SimSensor(config=a), SimSensor(config=b)), vessels=tuple(vessels),
                     zones_geojson=port_calder_zones_geojson(), rules_toml=PORT_CALDER_RULES)
