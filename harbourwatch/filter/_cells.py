@@ -38,6 +38,7 @@ from harbourwatch.filter._association import (
     merge_clusters,
 )
 from harbourwatch.filter._hypotheses import Bernoulli, Cluster, LocalHyp
+from harbourwatch.filter._scanstep import collect_groups
 
 __all__ = [
     "LADDER_M", "CellBook", "scan_partitions", "cell_groups", "update_partitions", "has_close_plots",
@@ -157,18 +158,7 @@ def cell_groups(m: int, n_clusters: int, pair_slot: list[int], pair_cell: list[i
             union(cell[0], j)
     for i, c in zip(pair_slot, pair_cell, strict=True):
         union(book.plots_of(c)[0], m + slot_cluster[i])
-    groups: dict[int, tuple[list[int], list[int]]] = {}
-    for j in range(m):
-        groups.setdefault(find(j), ([], []))[0].append(j)
-    for ci in range(n_clusters):
-        root = find(m + ci)
-        if root in groups:
-            groups[root][1].append(ci)
-    touched = {ci for _, cis in groups.values() for ci in cis}
-    miss_only = sorted({slot_cluster[s] for s in slots_in_cover} - touched)
-    work: list[tuple[list[int], list[int]]] = [([], [ci]) for ci in miss_only] + sorted(
-        groups.values(), key=lambda g: g[0])
-    return work, touched | set(miss_only)
+    return collect_groups(find, m, n_clusters, slot_cluster, slots_in_cover)
 
 
 def group_partitions(plots: list[int], parts: list[list[int]], book: CellBook) -> list[list[int]]:

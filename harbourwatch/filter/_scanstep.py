@@ -142,6 +142,32 @@ class ChildMaker:
         return np.ascontiguousarray(kinds), np.ascontiguousarray(src), np.ascontiguousarray(par)
 
 
+def collect_groups(
+    find: Callable[[int], int],
+    m: int,
+    n_clusters: int,
+    slot_cluster: list[int],
+    slots_in_cover: list[int],
+) -> tuple[list[tuple[list[int], list[int]]], set[int]]:
+    """The work list of a scan from a union-find over plots ``0..m-1`` and clusters ``m + c``.
+
+    Shared by :func:`group_work` (plots) and the cell grouping of extended vessels.
+    """
+    groups: dict[int, tuple[list[int], list[int]]] = {}
+    for j in range(m):
+        groups.setdefault(find(j), ([], []))[0].append(j)
+    for ci in range(n_clusters):
+        root = find(m + ci)
+        if root in groups:
+            groups[root][1].append(ci)
+    touched = {ci for _, cis in groups.values() for ci in cis}
+    miss_only = sorted({slot_cluster[s] for s in slots_in_cover} - touched)
+    work: list[tuple[list[int], list[int]]] = [([], [ci]) for ci in miss_only] + sorted(
+        groups.values(), key=lambda g: g[0]
+    )
+    return work, touched | set(miss_only)
+
+
 def group_work(
     m: int,
     n_clusters: int,
@@ -170,19 +196,7 @@ def group_work(
         ra, rb = find(j), find(m + slot_cluster[i])
         if ra != rb:
             parent[ra] = rb
-    groups: dict[int, tuple[list[int], list[int]]] = {}
-    for j in range(m):
-        groups.setdefault(find(j), ([], []))[0].append(j)
-    for ci in range(n_clusters):
-        root = find(m + ci)
-        if root in groups:
-            groups[root][1].append(ci)
-    touched = {ci for _, cis in groups.values() for ci in cis}
-    miss_only = sorted({slot_cluster[s] for s in slots_in_cover} - touched)
-    work: list[tuple[list[int], list[int]]] = [([], [ci]) for ci in miss_only] + sorted(
-        groups.values(), key=lambda g: g[0]
-    )
-    return work, touched | set(miss_only)
+    return collect_groups(find, m, n_clusters, slot_cluster, slots_in_cover)
 
 
 def fast_path(clusters: list[Cluster], settings: FilterSettings, plots: list[int], cis: list[int],
