@@ -219,3 +219,67 @@ def make_inputs(*, n_tracks: int = 6, hours: float = 1.0, seed: int = 7,
     return ReportInputs(trajectories=ts, plots=plots, scans=scans, sensors=make_sensors(),
                         zones=make_zones(restricted_name), rules=rules, alerts=alerts,
                         provenance=prov, tile_url=tile_url)
+
+
+#: Hull sizes of the large vessels of :func:`make_hull_inputs`: length, beam (m) and the
+#: main axis of the extent in the local grid (degrees from grid north, clockwise).
+HULLS = {"T0001": (200.0, 30.0, 120.0), "T0002": (150.0, 24.0, 10.0),
+         "T0099": (280.0, 42.0, 75.0)}
+#: T0099: under way on grid course 240 at 4 m/s from +600 s, slows to rest over +1200..+1260 s.
+T99_COURSE_DEG, T99_SPEED, T99_START, T99_STOP, T99_END = 240.0, 4.0, 600.0, 1200.0, 2400.0
+
+
+def extent_tuple(length: float, beam: float, axis_deg: float, dof: float = 20.0) -> tuple[float, ...]:
+    """``(α, β, v, V00, V01, V11)`` whose extent mean ``V / (v - 3)`` is the ellipse
+    of this length and beam along ``axis_deg``: ``X = (L/2)^2 u u^T + (B/2)^2 w w^T``."""
+    a = np.radians(axis_deg)
+    u, w = np.array([np.sin(a), np.cos(a)]), np.array([np.cos(a), -np.sin(a)])
+    x = (length / 2) ** 2 * np.outer(u, u) + (beam / 2) ** 2 * np.outer(w, w)
+    v = (dof - 3.0) * x
+    return (30.0, 10.0, dof, float(v[0, 0]), float(v[0, 1]), float(v[1, 1]))
+
+
+def make_hull_inputs() -> ReportInputs:
+    """:func:`make_inputs` with large vessels: T0001 (slow throughout, loiter alert),
+    T0002 (under way, slow while it meets the point-like T0003) and T0099 (under way,
+    then at rest); their as-seen rows know the length from 120 s after the first estimate."""
+    import dataclasses
+
+    base = make_inputs(n_tracks=6)
+    ts = base.trajectories
+    frame = ts.frame
+    grid = np.arange(T0, T0 + 3600.0 + 1e-9, SCAN_S)
+    t = grid[(grid >= T0 + T99_START) & (grid <= T0 + T99_END)]
+    tt = t - t[0]
+    ramp = T99_STOP - T99_START
+    sp = T99_SPEED * np.clip(1.0 - (tt - ramp) / 60.0, 0.0, 1.0)
+    dist = np.concatenate([[0.0], np.cumsum(0.5 * (sp[1:] + sp[:-1]) * np.diff(tt))])
+    me, mn = frame.to_local([57.49], [-30.0])
+    c = np.radians(T99_COURSE_DEG)
+    e, n = me[0] + 1500.0 + dist * np.sin(c), mn[0] + 1500.0 + dist * np.cos(c)
+    mean = np.column_stack([e, sp * np.sin(c), n, sp * np.cos(c)])
+    cov = np.repeat(ts.trajectories[0].cov[:1], t.size, axis=0)
+    t99 = Trajectory(id="T0099", time=t, mean=mean, cov=cov, filt_mean=mean, filt_cov=cov,
+                     pred_mean=mean, pred_cov=cov, existence=0.99, end_probability=0.9,
+                     alive_at_end=False, plot_ids=np.full(t.size, -1, np.int64),
+                     sensor_ids=np.zeros(t.size, np.int64))
+    trajs = [dataclasses.replace(tr, extent=extent_tuple(*HULLS[tr.id])) if tr.id in HULLS else tr
+             for tr in ts.trajectories] + [dataclasses.replace(t99, extent=extent_tuple(*HULLS["T0099"]))]
+    a = ts.as_seen
+    sel = np.arange(0, t.size, 4)
+    sel = sel[t[sel] >= t[0] + 60.0]
+    at = np.concatenate([a.time, t[sel]])
+    aid = np.concatenate([a.track, np.full(sel.size, "T0099", dtype="<U16")])
+    am = np.vstack([a.mean, mean[sel]])
+    first = {tid: at[aid == tid].min() for tid in set(aid.tolist())}
+    length = np.full(at.size, np.nan)
+    for tid, (hl, _, _) in HULLS.items():
+        known = (aid == tid) & (at >= first[tid] + 120.0)
+        length[known] = 0.9 * hl  # as known then: shorter than the final estimate
+    order = np.lexsort((aid, at))
+    as_seen = AsSeenTable(time=at[order], track=aid[order], mean=am[order],
+                          sd=np.full(at.size, 6.0), existence=np.full(at.size, 0.9),
+                          length=length[order])
+    new_ts = TrajectorySet(trajectories=tuple(trajs), frame=frame, as_seen=as_seen,
+                           feed_start=ts.feed_start, feed_end=ts.feed_end)
+    return dataclasses.replace(base, trajectories=new_ts)

@@ -17,6 +17,7 @@ from numpy.typing import NDArray
 
 from harbourwatch.io.feeds import Scan
 from harbourwatch.io.records import SensorConfig, ZoneConfig
+from harbourwatch.report._hull import encode_headings, true_headings
 from harbourwatch.trajectories import Trajectory, TrajectorySet
 
 __all__ = [
@@ -77,6 +78,15 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
     ``as_seen`` holds, per track id, the last as-seen estimate in each grid
     step (no interpolation; the page does not join points further apart
     than ``max_gap`` seconds). Coordinates are kept to 5 decimals (about 1 m).
+
+    Only large vessels (a trajectory with a :attr:`~Trajectory.size`) carry
+    the hull outline's fields (:mod:`._hull`): ``h``, the outline's heading
+    at each sample (whole degrees true, delta-encoded modulo 360); in
+    ``hindsight`` also ``hull``, ``[length_m, beam_m]`` of the estimate; in
+    ``as_seen`` (the same id as a large trajectory) ``len``, the hull length
+    as known at each sample in whole metres (``0``: not yet judged extended;
+    delta-encoded like the positions) and ``bl``, the estimate's
+    beam-to-length ratio.
     """
     t0 = ts.feed_start
     step = REPLAY_STEP_S
@@ -93,10 +103,19 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
         n = np.interp(tq, tr.time, tr.mean[:, 2])
         lat, lon = ts.frame.to_wgs84(e, n)
         keep = np.concatenate([[True], np.diff(kq) > 0])
-        hind.append({"id": tr.id, "p": _encode(kq[keep], lat[keep], lon[keep]),
-                     "live": bool(tr.alive_at_end)})
+        entry: dict[str, object] = {"id": tr.id, "p": _encode(kq[keep], lat[keep], lon[keep]),
+                                    "live": bool(tr.alive_at_end)}
+        sz = tr.size
+        if sz is not None:  # a large vessel: its hull outline
+            ve = np.interp(tq, tr.time, tr.mean[:, 1])
+            vn = np.interp(tq, tr.time, tr.mean[:, 3])
+            hd, _ = true_headings(ts.frame, e[keep], n[keep], ve[keep], vn[keep], sz[2])
+            entry["hull"] = [round(sz[0], 1), round(sz[1], 1)]
+            entry["h"] = encode_headings(hd)
+        hind.append(entry)
     seen: list[dict[str, object]] = []
     a = ts.as_seen
+    sized = {tr.id: tr for tr in ts.trajectories if tr.size is not None}
     if a.time.size:
         e_all, n_all = a.mean[:, 0], a.mean[:, 2]
         lat_all, lon_all = ts.frame.to_wgs84(e_all, n_all)
@@ -108,8 +127,11 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
             k = kstep[rows]
             last = np.concatenate([k[1:] != k[:-1], [True]])  # last estimate in each step
             r = rows[last]
-            seen.append({"id": tid, "p": _encode(np.round(kstep[r] * step).astype(np.int64),
-                                                   lat_all[r], lon_all[r])})
+            entry = {"id": tid, "p": _encode(np.round(kstep[r] * step).astype(np.int64),
+                                             lat_all[r], lon_all[r])}
+            if tid in sized:
+                entry.update(_as_seen_hull(ts, sized[tid], r))
+            seen.append(entry)
     return {
         "t0": t0,
         "t1": ts.feed_end,
@@ -119,6 +141,22 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
         "hindsight": hind,
         "as_seen": seen,
     }
+
+
+def _as_seen_hull(ts: TrajectorySet, tr: Trajectory, rows: NDArray[np.int64]) -> dict[str, object]:
+    """As-seen outline fields of one vessel: the length as known then (0: not yet judged
+    extended), the final estimate's beam-to-length ratio, headings from the filtered state."""
+    a, sz = ts.as_seen, tr.size
+    if a.length is None or sz is None:
+        return {}
+    length = a.length[rows]
+    if not np.isfinite(length).any():
+        return {}
+    m = a.mean[rows]
+    hd, _ = true_headings(ts.frame, m[:, 0], m[:, 2], m[:, 1], m[:, 3], sz[2])
+    whole = np.round(np.nan_to_num(length, nan=0.0)).astype(np.int64)
+    return {"len": [int(v) for v in np.diff(whole, prepend=0)],
+            "bl": round(sz[1] / sz[0], 3), "h": encode_headings(hd)}
 
 
 @dataclass(frozen=True)

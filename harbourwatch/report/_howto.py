@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from harbourwatch.report._data import REPLAY_STEP_S, SIMPLIFY_TOLERANCE_M
 from harbourwatch.report._html import esc
+from harbourwatch.report._hull import HULL_COURSE_MIN_KN
 
 __all__ = ["how_to_read", "HOW_TO_READ"]
 
@@ -34,6 +35,18 @@ HOW_TO_READ: tuple[tuple[str, str], ...] = (
      "The replay can instead show what the tool knew at each moment without looking ahead; "
      "it lags and wanders more. Use it to judge what could have been noticed then. The "
      f"replay moves in steps of {REPLAY_STEP_S:g} s."),
+    ("Hull outlines",
+     "A large vessel (several radar plots per turn) is drawn in the replay, and on its incident "
+     "pages, as an ellipse of its estimated length and beam, to scale. An ellipse because that "
+     "is the shape the tool estimates: the length and beam are its two axes, and a ship-shaped "
+     "outline would add a bow and a stern that the plots do not show. The ellipse lies along "
+     f"the vessel's course when it makes {HULL_COURSE_MIN_KN:g} kn or more; slower, along the "
+     "main axis of its size estimate. The size is the tool's last estimate for the vessel, so a "
+     "ship that lay still before it turned onto another heading is drawn, while still, along "
+     "the later axis. As seen at the time, the outline appears once the tool judged the vessel "
+     "large and takes the length known then; its proportions and, when slow, its direction "
+     "come from the last estimate. The small dot ahead of the position still shows the "
+     "direction of travel."),
     ("Ellipses and uncertainty",
      "A blue ellipse on an incident page is the 2-sigma area: the vessel was inside it with "
      "a probability of about 86 %. Positions are given as degrees and minutes (WGS84) with a "

@@ -95,6 +95,9 @@ def vessels_html(inputs: ReportInputs, rows: Sequence[VesselRow]) -> str:
     ts = inputs.trajectories
     day, tz = fmt_day(ts.feed_start), inputs.display_tz
     zones = {z.id: zone_label(z) for z in inputs.zones if z.kind_key != "land"}
+    size_note = ("the estimated hull length \u00d7 beam of a large vessel (drawn as its outline "
+                 "in the replay), \u2014 for a point-like one." if any(r.size for r in rows)
+                 else "not estimated in this run.")
     body = []
     for i, r in enumerate(rows):
         zone_txt = ", ".join(esc_user(zones.get(z, z)) for z in r.zones) or "\u2014"
@@ -134,6 +137,5 @@ def vessels_html(inputs: ReportInputs, rows: Sequence[VesselRow]) -> str:
         f"{head}</tr></thead><tbody>{''.join(body)}</tbody></table></div>"
         '<p class="hw-sub hw-noprint">Times are UTC; "from"/"to" keep the vessels present at '
         "some moment in that window. Click a row (or press Enter on it) to show the vessel on "
-        "the map and move the replay to its first moment. Size: not estimated in this run."
-        "</p>"
+        f"the map and move the replay to its first moment. Size: {size_note}</p>"
     )

@@ -23,6 +23,13 @@ from harbourwatch.report._html import (
     script_json,
     tooltip_user,
 )
+from harbourwatch.report._hull import (
+    HULL_KEY,
+    HullOutline,
+    add_hulls,
+    hull_outline,
+    hull_sentence,
+)
 from harbourwatch.report._layers import (
     add_track,
     add_zones,
@@ -56,12 +63,13 @@ def _num(v: Any) -> str:
 
 def narrative(a: Alert, *, rule: RuleConfig | None, zone: ZoneConfig | None,
               n_plots: int | None = None, sd_m: float | None = None,
-              positions: AlertPositions | None = None) -> str:
+              positions: AlertPositions | None = None, size: str = "") -> str:
     """Plain-language paragraph about one alert (not escaped; plain text).
 
     Built only from the alert's own fields, its rule's parameters and the
     trajectory's plot count and uncertainty, so a reviewer can paste it into
-    an incident record.
+    an incident record. ``size`` (sentences on a large vessel's size) goes
+    before the closing caution.
     """
     params: Mapping[str, Any] = rule.params if rule is not None else {}
     where = f"zone {zone_label(zone)}" if zone is not None else (
@@ -109,6 +117,7 @@ def narrative(a: Alert, *, rule: RuleConfig | None, zone: ZoneConfig | None,
         if sd_m is not None and np.isfinite(sd_m):
             text += f"; its position uncertainty at the start of the episode was about {sd_m:.0f} m (1 sigma)"
         text += "."
+    text += size
     text += (" This is a statistical estimate from radar data alone; confirm it with other "
              "sources before acting on it.")
     return text
@@ -153,6 +162,7 @@ class _Incident:
     trs: tuple[tuple[str, Trajectory], ...]  # ("focus" | "other", trajectory)
     window: tuple[float, float]
     ellipses: tuple[tuple[Trajectory, str, float, np.ndarray, float], ...]
+    hulls: tuple[tuple[Trajectory, str, float, HullOutline], ...]  # large vessels, key times
     positions: AlertPositions | None
     episode: tuple[np.ndarray, ...]  # lat/lon of each trajectory between start and end
     day: str
@@ -170,7 +180,7 @@ def _incident(inputs: ReportInputs, index: int) -> _Incident:
                 trs.append((role, ts.by_id(tid)))
             except KeyError:
                 pass
-    ell = []
+    ell, hulls = [], []
     for role, tr in trs:
         for lab, t in ellipse_points(a):
             if role == "other" and lab not in ("closest approach",):
@@ -178,11 +188,15 @@ def _incident(inputs: ReportInputs, index: int) -> _Incident:
             i = state_index(tr, t)
             ring = ellipse_latlon(ts.frame, tr.mean[i], tr.cov[i], k_sigma=ELLIPSE_K_SIGMA)
             ell.append((tr, lab, float(tr.time[i]), ring, float(tr.position_sd[i])))
+            hull = hull_outline(ts.frame, tr, i)
+            if hull is not None:
+                hulls.append((tr, lab, float(tr.time[i]), hull))
     return _Incident(
         index=index, alert=a,
         rule=next((r for r in inputs.rules if r.id == a.rule), None),
         zone=next((z for z in inputs.zones if z.id == a.zone), None),
         trs=tuple(trs), window=_window(a, [tr for _, tr in trs]), ellipses=tuple(ell),
+        hulls=tuple(hulls),
         positions=alert_positions(a, ts),
         episode=tuple(_segment(ts, tr, a.start, a.end) for _, tr in trs),
         day=fmt_day(a.start), tz=inputs.display_tz, quoted=alert_strings(a, inputs.zones),
@@ -256,7 +270,7 @@ def _add_ellipses(m: folium.Map, inc: _Incident) -> None:
 def _map(inc: _Incident, inputs: ReportInputs) -> tuple[MapParts, int, list[list[float]]]:
     """The incident map; its parts, the focus plot count and the episode's bounds."""
     ts = inputs.trajectories
-    seg_pts = list(inc.episode) + [e[3] for e in inc.ellipses]
+    seg_pts = list(inc.episode) + [e[3] for e in inc.ellipses] + [h[3].ring for h in inc.hulls]
     fallback = [(s.lat_deg, s.lon_deg) for s in inputs.sensors]
     bounds = map_bounds(seg_pts, fallback)
     m = new_map(bounds, tile_url=inputs.tile_url, height_px=470)
@@ -265,6 +279,7 @@ def _map(inc: _Incident, inputs: ReportInputs) -> tuple[MapParts, int, list[list
         add_zones(m, [inc.zone], ts.frame)
     n_plots = _add_plots(m, inc, inputs)
     _add_tracks(m, inc, ts)
+    add_hulls(m, inc.hulls, tz=inc.tz)
     _add_ellipses(m, inc)
     folium.LayerControl(collapsed=False, position="topright").add_to(m)
     return render_parts(m), n_plots, bounds
@@ -298,6 +313,8 @@ def _legend(inc: _Incident) -> str:
                  f'<ellipse cx="11" cy="11" rx="5" ry="3" fill="{PALETTE["sky"]}" fill-opacity="0.5" '
                  f'stroke="{PALETTE["blue"]}"/></svg>2-sigma position ellipse, drawn to scale (the '
                  "dashed ring of fixed size marks where it is when it is too small to see)</span>")
+    if inc.hulls:
+        items.append(HULL_KEY)
     if inc.zone is not None:
         zs = zone_style(inc.zone.kind)
         dash = f' stroke-dasharray="{zs.dash}"' if zs.dash else ""
@@ -401,11 +418,13 @@ def incident_html(inputs: ReportInputs, index: int) -> str:
     a = inc.alert
     parts, n_plots, bounds = _map(inc, inputs)
     sd0 = inc.ellipses[0][4] if inc.ellipses else None
-    text = narrative(a, rule=inc.rule, zone=inc.zone, n_plots=n_plots if inc.trs else None,
-                     sd_m=sd0, positions=inc.positions)
     sizes = _sizes(inc)
-    if sizes:  # large vessels: say how large
-        text += " Estimated size: " + "; ".join(f"{k}: {v}" for k, v in sizes.items()) + "."
+    size = ""
+    if sizes:  # large vessels: say how large, and where the map draws the hull
+        size = " Estimated size: " + "; ".join(f"{k}: {v}" for k, v in sizes.items()) + "."
+        size += hull_sentence(inc.hulls)
+    text = narrative(a, rule=inc.rule, zone=inc.zone, n_plots=n_plots if inc.trs else None,
+                     sd_m=sd0, positions=inc.positions, size=size)
     body = (
         '<p class="hw-nav hw-noprint"><a href="../report.html">\u2190 shift overview</a> \u00b7 '
         '<a href="../report.html#how-to-read">how to read this report</a></p>'

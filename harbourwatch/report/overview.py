@@ -42,7 +42,7 @@ from harbourwatch.report._layers import (
 )
 from harbourwatch.report._mapbase import SafePopup, new_map, render_parts, round5
 from harbourwatch.report._page import document, provenance_html
-from harbourwatch.report._style import PALETTE, SENSOR_COLOURS, TRACK_STYLE, zone_kinds
+from harbourwatch.report._style import INK, PALETTE, SENSOR_COLOURS, TRACK_STYLE, zone_kinds
 from harbourwatch.report._vessels import (
     filter_choices,
     vessel_rows,
@@ -92,7 +92,7 @@ def map_bounds(points: Sequence[np.ndarray], fallback: Sequence[tuple[float, flo
             [float(hi[0] + pad[0]), float(hi[1] + pad[1])]]
 
 
-def _legend() -> str:
+def _legend(hulls: bool = False) -> str:
     items = []
     for key, label in (("present", "present at end of shift"), ("departed", "departed earlier")):
         st = TRACK_STYLE[key]
@@ -117,6 +117,13 @@ def _legend() -> str:
         'cy="7" r="5" fill="#fff" stroke="#009E73" stroke-width="2.5"/></svg>'
         "replay: as seen at the time</span>"
     )
+    if hulls:
+        items.append(
+            f'<span class="hw-key"><svg width="26" height="14" aria-hidden="true"><ellipse cx="13" '
+            f'cy="7" rx="12" ry="4" fill="{PALETTE["blue"]}" fill-opacity="0.3" stroke="{INK}" '
+            'stroke-width="1.5"/></svg>replay: hull outline of a large vessel, to scale '
+            "(dashed green as seen at the time)</span>"
+        )
     for zs in zone_kinds().values():
         dash = f' stroke-dasharray="{zs.dash}"' if zs.dash else ""
         items.append(
@@ -364,7 +371,7 @@ def overview_html(inputs: ReportInputs) -> str:
         f"{head}{nav}{_warnings(inputs)}"
         f"{parts.html}"
         f"{replay}"
-        f"{_legend()}{vessels}"
+        f"{_legend(any(tr.extent is not None for tr in ts.trajectories))}{vessels}"
         f'<p class="hw-sub">Trajectories are smoothed estimates (using the whole shift), drawn '
         f"simplified to {SIMPLIFY_TOLERANCE_M:g} m; the replay is resampled to "
         f"{REPLAY_STEP_S:g} s and shows a trail of the last few minutes. \u201cAs seen at the "

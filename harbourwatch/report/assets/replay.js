@@ -1,7 +1,8 @@
 /* harbourwatch shift replay: slider, play/pause, speed, trail length, hindsight/as-seen switch,
    and "only what had happened by then". Data: the JSON block with id "hw-replay-data", see
    report/_data.py. The vessel symbol is our own: a dot for the position and a small "bow"
-   dot ahead of it in the direction of travel. */
+   dot ahead of it in the direction of travel; a large vessel also gets its estimated hull
+   outline, an ellipse to scale along its heading (report/_hull.py says which heading). */
 (function () {
   "use strict";
   var el = document.getElementById("hw-replay-data");
@@ -18,6 +19,8 @@
   var span = cfg.t1 - cfg.t0;
   var KNOT = 1852.0 / 3600.0;  // metres per second in one knot
   var BOW_PX = 11;
+  var HULL_N = 36;  // vertices of a hull ellipse, as report/_hull.py's HULL_RING_POINTS
+  var WGS84_A = 6378137.0, WGS84_E2 = 0.00669437999014;  // WGS84 semi-major axis, e^2
 
   function decode(tr) {
     var p = tr.p, n = p.length / 3, t = new Float64Array(n), la = new Float64Array(n),
@@ -26,7 +29,20 @@
       a += p[3 * i]; b += p[3 * i + 1]; c += p[3 * i + 2];
       t[i] = a; la[i] = b / 1e5; lo[i] = c / 1e5;
     }
-    return { id: tr.id, live: !!tr.live, t: t, la: la, lo: lo };
+    var out = { id: tr.id, live: !!tr.live, t: t, la: la, lo: lo, hd: null };
+    if (tr.h) {  // a large vessel: outline headings (delta-encoded, modulo 360) and size
+      var hd = new Float64Array(n), h = 0;
+      for (var j = 0; j < n; j++) { h = (h + tr.h[j] + 360) % 360; hd[j] = h; }
+      out.hd = hd;
+      out.hull = tr.hull || null;
+      if (tr.len) {  // as seen: hull length known then, delta-encoded whole metres
+        var len = new Float64Array(n), l = 0;
+        for (var q = 0; q < n; q++) { l += tr.len[q]; len[q] = l; }
+        out.len = len;
+      } else { out.len = null; }
+      out.bl = tr.bl || 0;
+    }
+    return out;
   }
   var sets = { hindsight: cfg.hindsight.map(decode), as_seen: cfg.as_seen.map(decode) };
   var styles = {
@@ -40,6 +56,10 @@
   var trailStyle = {
     hindsight: { color: "#1b1b1b", weight: 2, opacity: 0.8 },
     as_seen: { color: "#009E73", weight: 2, opacity: 0.9, dashArray: "3 4" }
+  };
+  var hullStyle = {
+    hindsight: { color: "#1b1b1b", weight: 1.5, fillColor: "#0072B2", fillOpacity: 0.3 },
+    as_seen: { color: "#009E73", weight: 2, dashArray: "4 3", fillColor: "#009E73", fillOpacity: 0.12 }
   };
   var histStyle = {
     hindsight: { color: "#0072B2", weight: 2, opacity: 0.75 },
@@ -72,6 +92,11 @@
         var c = String(Math.round(e.vel.course) % 360); while (c.length < 3) { c = "0" + c; }
         lines.push(e.vel.kn.toFixed(1) + " kn, course " + c + "\u00b0");
       }
+      if (e.hullNow) {
+        var hh = String(Math.round(e.hullNow.heading) % 360); while (hh.length < 3) { hh = "0" + hh; }
+        lines.push("hull about " + Math.round(e.hullNow.length) + " m \u00d7 " +
+          Math.round(e.hullNow.beam) + " m, heading " + hh + "\u00b0");
+      }
       lines.push(dm(e.pos[0], 2, "NS") + " " + dm(e.pos[1], 3, "EW"));
       lines.push(fmt(cur));
     }
@@ -90,6 +115,11 @@
       var hs = histStyle[mode];
       if (mode === "hindsight" && !tr.live) { hs = copy(hs, { color: "#E69F00", dashArray: "7 5" }); }
       e.hist = L.polyline([], copy(hs, { className: "hw-hist", interactive: false }));
+      if (tr.hd) {
+        e.hull = L.polygon([], copy(hullStyle[mode], { className: "hw-hull", interactive: false }));
+        e.hullOn = false;
+        e.hullNow = null;
+      }
       return e;
     });
   }
@@ -151,6 +181,39 @@
     segs.push(seg);
     return segs;
   }
+  /* the outline's size and heading at s: hindsight interpolates the heading between
+     samples (the shorter way round), as seen holds the last sample like the position */
+  function hullAt(tr, s) {
+    var i = lastAtOrBefore(tr.t, s);
+    if (i < 0) { return null; }
+    if (mode === "as_seen") {
+      var len = tr.len ? tr.len[i] : 0;
+      if (!(len > 0)) { return null; }
+      return { length: len, beam: len * tr.bl, heading: tr.hd[i] };
+    }
+    if (!tr.hull) { return null; }
+    var h = tr.hd[i];
+    if (i + 1 < tr.t.length && s > tr.t[i]) {
+      var f = (s - tr.t[i]) / (tr.t[i + 1] - tr.t[i]);
+      var d = ((tr.hd[i + 1] - h + 540) % 360) - 180;
+      h = (h + f * d + 360) % 360;
+    }
+    return { length: tr.hull[0], beam: tr.hull[1], heading: h };
+  }
+  /* ellipse of length x beam around p along heading (degrees true), in metres on the WGS84
+     ellipsoid's local radii of curvature; vertex 0 is the bow end, HULL_N / 2 the stern */
+  function hullRing(p, hl) {
+    var phi = p[0] * Math.PI / 180, sp = Math.sin(phi), w = 1 - WGS84_E2 * sp * sp;
+    var mLat = WGS84_A * (1 - WGS84_E2) / (w * Math.sqrt(w)) * Math.PI / 180;
+    var mLon = WGS84_A / Math.sqrt(w) * Math.cos(phi) * Math.PI / 180;
+    var h = hl.heading * Math.PI / 180, sh = Math.sin(h), ch = Math.cos(h), ring = [];
+    for (var k = 0; k < HULL_N; k++) {
+      var a = 2 * Math.PI * k / HULL_N, al = 0.5 * hl.length * Math.cos(a),
+        ac = 0.5 * hl.beam * Math.sin(a);
+      ring.push([p[0] + (al * ch - ac * sh) / mLat, p[1] + (al * sh + ac * ch) / mLon]);
+    }
+    return ring;
+  }
   function bowAt(p, vel) {
     if (!vel) { return p; }
     var c = vel.course * Math.PI / 180, pt = map.latLngToLayerPoint(p);
@@ -192,7 +255,7 @@
     var len = trailSel ? parseFloat(trailSel.value) : cfg.trail;
     clock.textContent = fmt(s);
     mapEl.classList.toggle("hw-upto", upto);
-    var shown = 0;
+    var shown = 0, raised = false;
     entries.forEach(function (e) {
       var i = lastAtOrBefore(e.tr.t, s);
       if (upto && i >= 0) {
@@ -201,6 +264,13 @@
       } else if (e.histOn) { layer.removeLayer(e.hist); e.histOn = false; e.histI = -2; }
       var p = position(e.tr, s);
       e.pos = p;
+      var hl = (p !== null && e.hull) ? hullAt(e.tr, s) : null;
+      if (e.hull) {
+        e.hullNow = hl;
+        if (hl) { e.hull.setLatLngs(hullRing(p, hl)); }
+        if (hl && !e.hullOn) { layer.addLayer(e.hull); e.hullOn = true; raised = true; }
+        if (!hl && e.hullOn) { layer.removeLayer(e.hull); e.hullOn = false; }
+      }
       if (p === null) {
         if (e.on) { layer.removeLayer(e.mk); layer.removeLayer(e.bow); layer.removeLayer(e.trail); e.on = false; }
         return;
@@ -218,6 +288,12 @@
       if (want && !m.on) { alertLayer.addLayer(m.mk); m.on = true; }
       if (!want && m.on) { alertLayer.removeLayer(m.mk); m.on = false; }
     });
+    if (raised) {  // a hull outline just drawn goes under every vessel symbol and alert mark
+      entries.forEach(function (e) {
+        if (e.on) { e.trail.bringToFront(); e.bow.bringToFront(); e.mk.bringToFront(); }
+      });
+      alertMarks.forEach(function (m) { if (m.on) { m.mk.bringToFront(); } });
+    }
     slider.setAttribute("aria-valuetext", fmt(s) + ", " + shown + " vessels");
   }
   var playing = false, last = null;
@@ -269,6 +345,14 @@
         return [e.tr.id, flat];
       });
     },
+    /* [id, {length, beam, heading}, [[lat, lon], ...]] of every hull outline drawn now */
+    hulls: function () {
+      return entries.filter(function (e) { return e.hull && e.hullOn; }).map(function (e) {
+        var ring = e.hull.getLatLngs()[0].map(function (x) { return [x.lat, x.lng]; });
+        return [e.tr.id, e.hullNow, ring];
+      });
+    },
+    mode: function () { return mode; },
     time: function () { return cur; },
     /* the tooltip text of vessel id at the current time ("" when it is not shown) */
     tip: function (id) {
