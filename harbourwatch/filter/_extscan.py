@@ -113,6 +113,27 @@ def _concat(a: tuple, b: tuple) -> tuple:  # type: ignore[type-arg]
     return tuple(np.concatenate([x, y]) for x, y in zip(a, b, strict=True))
 
 
+def _one_plot_each(pairs: tuple, point: NDArray[np.bool_]  # type: ignore[type-arg]
+                   ) -> tuple[IntArray, IntArray, Array]:
+    """``(slot, plot, log-likelihood)`` of the point path's pairs, one plot per point-like slot.
+
+    An established point-like vessel gives at most one plot, so it guides
+    the partitions with its best plot only; the other plots in its gate go
+    with the vessel that gates best with them next (beside a hull: the
+    hull's cell), so that a partition with the craft's plot alone and the
+    ship's plots together is among the candidates.
+    """
+    ii, jj, ll = pairs[0], pairs[1], pairs[2]
+    keep = ~point[ii]
+    top: dict[int, tuple[float, int]] = {}
+    for p in np.flatnonzero(~keep).tolist():
+        i, v = int(ii[p]), float(ll[p])
+        if v > top.get(i, (-math.inf, -1))[0]:
+            top[i] = (v, p)
+    keep[[p for _, p in top.values()]] = True
+    return ii[keep], jj[keep], ll[keep]
+
+
 def extended_scan(motion: Any, gate: Any, leaf: Any, pm: Any, pP: Any, tmiss: Any, pd: Any, slot_ext: Any, z: Any, R: Any, tj: Any, ids: Any,
                   std_pairs: Any, slot_bern: Any) -> ExtendedScan:
     """Extended pairs, cells and their new-vessel terms for one scan (see the module note).
@@ -154,7 +175,7 @@ def extended_scan(motion: Any, gate: Any, leaf: Any, pm: Any, pP: Any, tmiss: An
     # the plot each slot gates best with (prediction-guided cells and splitting)
     best = np.full(m, -1, np.int64)
     score = np.full(m, -np.inf)
-    for ii_, jj_, ll_ in [(std_pairs[0], std_pairs[1], std_pairs[2])] + [
+    for ii_, jj_, ll_ in [_one_plot_each(std_pairs, established(pP) & ~is_ext)] + [
             (e[0], e[1], e[6][1]) for e in extra]:
         for i, j, ll in zip(ii_.tolist(), jj_.tolist(), ll_.tolist(), strict=True):
             if ll > score[j]:
@@ -297,22 +318,35 @@ def overlap_penalty(ii: IntArray, jj: IntArray, ll: Array, z: Array, pm: Array, 
     """Pair log-likelihoods with hulls that do not overlap.
 
     Two vessels cannot share a place: a pair whose plot (or cell centroid)
-    lies inside the predicted hull (see :data:`HULL_EXCLUSION`) of a longer
-    vessel of another Bernoulli (existence above 1/2) gets
-    :data:`OVERLAP_LOG_PENALTY`. Only the shorter one is penalised, so a
-    ship keeps its own plots and a fragment of it starves.
+    lies inside the predicted hull (see :data:`HULL_EXCLUSION`) of another
+    Bernoulli's vessel (existence above 1/2) gets :data:`OVERLAP_LOG_PENALTY`
+    when its own vessel is the less established of the two, so that a ship
+    keeps its own plots and a fragment of it starves:
+
+    * a point-like vessel yields to any hull, unless it is an established
+      small craft (:func:`established`): a point vessel gives at most one
+      plot, its gate is small, and one plot of it beside or over a hull is
+      scored by the likelihoods alone (a launch passing a ship's bow keeps
+      its track);
+    * of two extended vessels, the one whose extent rests on fewer plots
+      yields (the inverse-Wishart's ``v - 3``: the plots behind the extent,
+      after forgetting), the shorter one where they are equal. A fragment
+      that took part of a ship's plots and looks longer for a moment (its
+      prior extent plus scatter) does not push the ship off its plots.
     """
     ll = ll.copy()
     bern = np.asarray(slot_bern, np.int64)
     lam = {s: float(np.linalg.eigvalsh(V / (v - 3.0))[1]) for s, (_, _, v, V) in slot_ext.items()}
-    own = np.zeros(ii.size)
-    ext_of = {s: lam[s] for s in slot_ext}
-    own = np.array([ext_of.get(int(i), 0.0) for i in ii.tolist()])
+    own = np.array([lam.get(int(i), 0.0) for i in ii.tolist()])
+    own_v = np.array([float(slot_ext[i][2]) if i in slot_ext else 0.0 for i in ii.tolist()])
+    craft = (own == 0.0) & established(pP)[ii]
     for s, ext in slot_ext.items():
         if r[s] <= 0.5:
             continue
+        v_s = float(ext[2])
         inside = inside_hulls(z[jj], pm, pP, {s: ext}, circle=own > 0.0)
-        hit = inside & (bern[ii] != bern[s]) & (own < lam[s])
+        weaker = (own_v < v_s) | ((own_v == v_s) & (own < lam[s]))
+        hit = inside & (bern[ii] != bern[s]) & weaker & ~craft
         ll[hit] += OVERLAP_LOG_PENALTY
     return ll
 
