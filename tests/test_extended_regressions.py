@@ -20,6 +20,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from harbourwatch.cli import main
 from harbourwatch.filter._cells import CellBook, scan_partitions
@@ -130,3 +132,23 @@ def test_a_launch_crossing_over_a_hull_stays_one_trajectory(
     assert launch["breaks"] == 0 and launch["swaps"] == 0
     assert rep.per_truth["ship"]["swaps"] == 0
     assert len({r["track"] for r in _rows(out / "tracks.csv")}) == 2
+
+
+@settings(max_examples=120, deadline=None)
+@given(data=st.data(), m=st.integers(1, 40))
+def test_cell_components_are_scipys_connected_components(data: st.DataObject, m: int) -> None:
+    # the union-find of the distance partitioning against scipy's sparse-graph components
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    from harbourwatch.filter._cells import _components
+
+    edges = data.draw(st.lists(st.tuples(st.integers(0, m - 1), st.integers(0, m - 1)),
+                               max_size=3 * m))
+    a = np.array([e[0] for e in edges], np.int64)
+    b = np.array([e[1] for e in edges], np.int64)
+    got = _components(m, a, b)
+    ref = connected_components(coo_matrix((np.ones(a.size), (a, b)), shape=(m, m)),
+                               directed=False)[1]
+    # the same partition of the plots: labels equal exactly where the reference's are
+    assert np.array_equal(got[:, None] == got[None, :], ref[:, None] == ref[None, :])

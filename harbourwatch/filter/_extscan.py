@@ -262,6 +262,28 @@ HULL_EXCLUSION = 1.5**2
 HULL_CIRCLE = 1.2
 
 
+def _hulls(slot_ext: dict, pP: Array  # type: ignore[type-arg]
+           ) -> tuple[IntArray, Array, Array, Array, Array]:
+    """``(slots, v, X̂, λ_max(X̂), P_pos)`` of the extended slots, as arrays (closed-form 2x2)."""
+    slots = np.fromiter(slot_ext, np.int64, len(slot_ext))
+    v = np.array([float(e[2]) for e in slot_ext.values()])
+    X = np.array([e[3] for e in slot_ext.values()], float).reshape(-1, 2, 2) / (v - 3.0)[:, None, None]
+    lam = 0.5 * (X[:, 0, 0] + X[:, 1, 1]) + np.hypot(0.5 * (X[:, 0, 0] - X[:, 1, 1]), X[:, 0, 1])
+    return slots, v, X, lam, pP[slots][:, [0, 2]][:, :, [0, 2]]
+
+
+def _inside(z: Array, pm: Array, hulls: tuple[IntArray, Array, Array, Array, Array],
+            circle: NDArray[np.bool_] | None) -> NDArray[np.bool_]:
+    """``(slots, k)``: position ``k`` inside slot's predicted hull (see :func:`inside_hulls`)."""
+    slots, _, X, lam, Pp = hulls
+    d = z[None, :, :] - pm[slots][:, [0, 2]][:, None, :]
+    hit = np.einsum("ski,sij,skj->sk", d, inv2(X + Pp), d) < HULL_EXCLUSION
+    if circle is not None:
+        r2 = HULL_CIRCLE**2 * lam + Pp[:, 0, 0] + Pp[:, 1, 1]
+        hit = np.where(circle[None, :], np.einsum("ski,ski->sk", d, d) < r2[:, None], hit)
+    return hit
+
+
 def inside_hulls(z: Array, pm: Array, pP: Array, slot_ext: dict,  # type: ignore[type-arg]
                  circle: NDArray[np.bool_] | None = None) -> NDArray[np.bool_]:
     """Positions ``z (k, 2)`` inside the predicted hull of some extended slot (see above).
@@ -269,18 +291,11 @@ def inside_hulls(z: Array, pm: Array, pP: Array, slot_ext: dict,  # type: ignore
     Where ``circle`` is set the test is the hull's circle instead, of radius
     :data:`HULL_CIRCLE` half-lengths (a new extended vessel, or a shorter one's
     cell, cannot lie across a longer hull whatever the hull's heading).
+    All slots at once (arrays of slots x positions).
     """
-    out = np.zeros(z.shape[0], bool)
-    for s, (_, _, v, V) in slot_ext.items():
-        X = V / (v - 3.0)
-        Pp = pP[s][np.ix_([0, 2], [0, 2])]
-        d = z - pm[s][[0, 2]]
-        hit = np.einsum("ki,ij,kj->k", d, inv2(X + Pp), d) < HULL_EXCLUSION
-        if circle is not None:
-            r2 = HULL_CIRCLE**2 * float(np.linalg.eigvalsh(X)[1]) + float(np.trace(Pp))
-            hit = np.where(circle, np.einsum("ki,ki->k", d, d) < r2, hit)
-        out |= hit
-    return out
+    if not slot_ext:
+        return np.zeros(z.shape[0], bool)
+    return np.asarray(_inside(z, pm, _hulls(slot_ext, pP), circle).any(axis=0), bool)
 
 
 #: A point-like track is established once its velocity sd (m/s) is below this.
@@ -335,19 +350,23 @@ def overlap_penalty(ii: IntArray, jj: IntArray, ll: Array, z: Array, pm: Array, 
       prior extent plus scatter) does not push the ship off its plots.
     """
     ll = ll.copy()
+    if not slot_ext or not ii.size:
+        return ll
     bern = np.asarray(slot_bern, np.int64)
-    lam = {s: float(np.linalg.eigvalsh(V / (v - 3.0))[1]) for s, (_, _, v, V) in slot_ext.items()}
-    own = np.array([lam.get(int(i), 0.0) for i in ii.tolist()])
-    own_v = np.array([float(slot_ext[i][2]) if i in slot_ext else 0.0 for i in ii.tolist()])
-    craft = (own == 0.0) & established(pP)[ii]
-    for s, ext in slot_ext.items():
-        if r[s] <= 0.5:
-            continue
-        v_s = float(ext[2])
-        inside = inside_hulls(z[jj], pm, pP, {s: ext}, circle=own > 0.0)
-        weaker = (own_v < v_s) | ((own_v == v_s) & (own < lam[s]))
-        hit = inside & (bern[ii] != bern[s]) & weaker & ~craft
-        ll[hit] += OVERLAP_LOG_PENALTY
+    hulls = _hulls(slot_ext, pP)
+    slots, v, _, lam, _ = hulls
+    pos = np.full(pm.shape[0], -1, np.int64)
+    pos[slots] = np.arange(slots.size)
+    k = pos[ii]
+    own = np.where(k >= 0, lam[k], 0.0)
+    own_v = np.where(k >= 0, v[k], 0.0)
+    craft = (k < 0) & established(pP)[ii]
+    inside = _inside(z[jj], pm, hulls, own > 0.0)
+    weaker = (own_v[None, :] < v[:, None]) | ((own_v[None, :] == v[:, None])
+                                              & (own[None, :] < lam[:, None]))
+    hit = inside & (bern[ii][None, :] != bern[slots][:, None]) & weaker & ~craft[None, :]
+    for row in np.flatnonzero((r[slots] > 0.5) & hit.any(axis=1)).tolist():
+        ll[hit[row]] += OVERLAP_LOG_PENALTY
     return ll
 
 
