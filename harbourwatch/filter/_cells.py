@@ -26,8 +26,6 @@ from collections.abc import Callable
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.sparse import coo_matrix
-from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 
 from harbourwatch.filter._association import (
@@ -79,8 +77,25 @@ class CellBook:
 
 
 def _components(m: int, a: IntArray, b: IntArray) -> IntArray:
-    g = coo_matrix((np.ones(a.size), (a, b)), shape=(m, m))
-    return connected_components(g, directed=False)[1].astype(np.int64)
+    """Connected components of the graph on ``m`` plots with edges ``(a, b)``: a label per plot.
+
+    Union-find: a scan has tens of close pairs, for which scipy's sparse
+    graph costs more in setting up than in solving. Only which plots share
+    a label matters (cells are listed by their first plot).
+    """
+    parent = list(range(m))
+
+    def find(x: int) -> int:
+        while parent[x] != x:
+            parent[x] = parent[parent[x]]
+            x = parent[x]
+        return x
+
+    for x, y in zip(a.tolist(), b.tolist(), strict=True):
+        rx, ry = find(x), find(y)
+        if rx != ry:
+            parent[max(rx, ry)] = min(rx, ry)
+    return np.array([find(x) for x in range(m)], np.int64)
 
 
 def _groups(labels: IntArray) -> list[list[int]]:

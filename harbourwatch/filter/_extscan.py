@@ -113,6 +113,27 @@ def _concat(a: tuple, b: tuple) -> tuple:  # type: ignore[type-arg]
     return tuple(np.concatenate([x, y]) for x, y in zip(a, b, strict=True))
 
 
+def _one_plot_each(pairs: tuple, point: NDArray[np.bool_]  # type: ignore[type-arg]
+                   ) -> tuple[IntArray, IntArray, Array]:
+    """``(slot, plot, log-likelihood)`` of the point path's pairs, one plot per point-like slot.
+
+    An established point-like vessel gives at most one plot, so it guides
+    the partitions with its best plot only; the other plots in its gate go
+    with the vessel that gates best with them next (beside a hull: the
+    hull's cell), so that a partition with the craft's plot alone and the
+    ship's plots together is among the candidates.
+    """
+    ii, jj, ll = pairs[0], pairs[1], pairs[2]
+    keep = ~point[ii]
+    top: dict[int, tuple[float, int]] = {}
+    for p in np.flatnonzero(~keep).tolist():
+        i, v = int(ii[p]), float(ll[p])
+        if v > top.get(i, (-math.inf, -1))[0]:
+            top[i] = (v, p)
+    keep[[p for _, p in top.values()]] = True
+    return ii[keep], jj[keep], ll[keep]
+
+
 def extended_scan(motion: Any, gate: Any, leaf: Any, pm: Any, pP: Any, tmiss: Any, pd: Any, slot_ext: Any, z: Any, R: Any, tj: Any, ids: Any,
                   std_pairs: Any, slot_bern: Any) -> ExtendedScan:
     """Extended pairs, cells and their new-vessel terms for one scan (see the module note).
@@ -154,7 +175,7 @@ def extended_scan(motion: Any, gate: Any, leaf: Any, pm: Any, pP: Any, tmiss: An
     # the plot each slot gates best with (prediction-guided cells and splitting)
     best = np.full(m, -1, np.int64)
     score = np.full(m, -np.inf)
-    for ii_, jj_, ll_ in [(std_pairs[0], std_pairs[1], std_pairs[2])] + [
+    for ii_, jj_, ll_ in [_one_plot_each(std_pairs, established(pP) & ~is_ext)] + [
             (e[0], e[1], e[6][1]) for e in extra]:
         for i, j, ll in zip(ii_.tolist(), jj_.tolist(), ll_.tolist(), strict=True):
             if ll > score[j]:
@@ -241,6 +262,28 @@ HULL_EXCLUSION = 1.5**2
 HULL_CIRCLE = 1.2
 
 
+def _hulls(slot_ext: dict, pP: Array  # type: ignore[type-arg]
+           ) -> tuple[IntArray, Array, Array, Array, Array]:
+    """``(slots, v, X̂, λ_max(X̂), P_pos)`` of the extended slots, as arrays (closed-form 2x2)."""
+    slots = np.fromiter(slot_ext, np.int64, len(slot_ext))
+    v = np.array([float(e[2]) for e in slot_ext.values()])
+    X = np.array([e[3] for e in slot_ext.values()], float).reshape(-1, 2, 2) / (v - 3.0)[:, None, None]
+    lam = 0.5 * (X[:, 0, 0] + X[:, 1, 1]) + np.hypot(0.5 * (X[:, 0, 0] - X[:, 1, 1]), X[:, 0, 1])
+    return slots, v, X, lam, pP[slots][:, [0, 2]][:, :, [0, 2]]
+
+
+def _inside(z: Array, pm: Array, hulls: tuple[IntArray, Array, Array, Array, Array],
+            circle: NDArray[np.bool_] | None) -> NDArray[np.bool_]:
+    """``(slots, k)``: position ``k`` inside slot's predicted hull (see :func:`inside_hulls`)."""
+    slots, _, X, lam, Pp = hulls
+    d = z[None, :, :] - pm[slots][:, [0, 2]][:, None, :]
+    hit = np.einsum("ski,sij,skj->sk", d, inv2(X + Pp), d) < HULL_EXCLUSION
+    if circle is not None:
+        r2 = HULL_CIRCLE**2 * lam + Pp[:, 0, 0] + Pp[:, 1, 1]
+        hit = np.where(circle[None, :], np.einsum("ski,ski->sk", d, d) < r2[:, None], hit)
+    return hit
+
+
 def inside_hulls(z: Array, pm: Array, pP: Array, slot_ext: dict,  # type: ignore[type-arg]
                  circle: NDArray[np.bool_] | None = None) -> NDArray[np.bool_]:
     """Positions ``z (k, 2)`` inside the predicted hull of some extended slot (see above).
@@ -248,18 +291,11 @@ def inside_hulls(z: Array, pm: Array, pP: Array, slot_ext: dict,  # type: ignore
     Where ``circle`` is set the test is the hull's circle instead, of radius
     :data:`HULL_CIRCLE` half-lengths (a new extended vessel, or a shorter one's
     cell, cannot lie across a longer hull whatever the hull's heading).
+    All slots at once (arrays of slots x positions).
     """
-    out = np.zeros(z.shape[0], bool)
-    for s, (_, _, v, V) in slot_ext.items():
-        X = V / (v - 3.0)
-        Pp = pP[s][np.ix_([0, 2], [0, 2])]
-        d = z - pm[s][[0, 2]]
-        hit = np.einsum("ki,ij,kj->k", d, inv2(X + Pp), d) < HULL_EXCLUSION
-        if circle is not None:
-            r2 = HULL_CIRCLE**2 * float(np.linalg.eigvalsh(X)[1]) + float(np.trace(Pp))
-            hit = np.where(circle, np.einsum("ki,ki->k", d, d) < r2, hit)
-        out |= hit
-    return out
+    if not slot_ext:
+        return np.zeros(z.shape[0], bool)
+    return np.asarray(_inside(z, pm, _hulls(slot_ext, pP), circle).any(axis=0), bool)
 
 
 #: A point-like track is established once its velocity sd (m/s) is below this.
@@ -297,23 +333,40 @@ def overlap_penalty(ii: IntArray, jj: IntArray, ll: Array, z: Array, pm: Array, 
     """Pair log-likelihoods with hulls that do not overlap.
 
     Two vessels cannot share a place: a pair whose plot (or cell centroid)
-    lies inside the predicted hull (see :data:`HULL_EXCLUSION`) of a longer
-    vessel of another Bernoulli (existence above 1/2) gets
-    :data:`OVERLAP_LOG_PENALTY`. Only the shorter one is penalised, so a
-    ship keeps its own plots and a fragment of it starves.
+    lies inside the predicted hull (see :data:`HULL_EXCLUSION`) of another
+    Bernoulli's vessel (existence above 1/2) gets :data:`OVERLAP_LOG_PENALTY`
+    when its own vessel is the less established of the two, so that a ship
+    keeps its own plots and a fragment of it starves:
+
+    * a point-like vessel yields to any hull, unless it is an established
+      small craft (:func:`established`): a point vessel gives at most one
+      plot, its gate is small, and one plot of it beside or over a hull is
+      scored by the likelihoods alone (a launch passing a ship's bow keeps
+      its track);
+    * of two extended vessels, the one whose extent rests on fewer plots
+      yields (the inverse-Wishart's ``v - 3``: the plots behind the extent,
+      after forgetting), the shorter one where they are equal. A fragment
+      that took part of a ship's plots and looks longer for a moment (its
+      prior extent plus scatter) does not push the ship off its plots.
     """
     ll = ll.copy()
+    if not slot_ext or not ii.size:
+        return ll
     bern = np.asarray(slot_bern, np.int64)
-    lam = {s: float(np.linalg.eigvalsh(V / (v - 3.0))[1]) for s, (_, _, v, V) in slot_ext.items()}
-    own = np.zeros(ii.size)
-    ext_of = {s: lam[s] for s in slot_ext}
-    own = np.array([ext_of.get(int(i), 0.0) for i in ii.tolist()])
-    for s, ext in slot_ext.items():
-        if r[s] <= 0.5:
-            continue
-        inside = inside_hulls(z[jj], pm, pP, {s: ext}, circle=own > 0.0)
-        hit = inside & (bern[ii] != bern[s]) & (own < lam[s])
-        ll[hit] += OVERLAP_LOG_PENALTY
+    hulls = _hulls(slot_ext, pP)
+    slots, v, _, lam, _ = hulls
+    pos = np.full(pm.shape[0], -1, np.int64)
+    pos[slots] = np.arange(slots.size)
+    k = pos[ii]
+    own = np.where(k >= 0, lam[k], 0.0)
+    own_v = np.where(k >= 0, v[k], 0.0)
+    craft = (k < 0) & established(pP)[ii]
+    inside = _inside(z[jj], pm, hulls, own > 0.0)
+    weaker = (own_v[None, :] < v[:, None]) | ((own_v[None, :] == v[:, None])
+                                              & (own[None, :] < lam[:, None]))
+    hit = inside & (bern[ii][None, :] != bern[slots][:, None]) & weaker & ~craft[None, :]
+    for row in np.flatnonzero((r[slots] > 0.5) & hit.any(axis=1)).tolist():
+        ll[hit[row]] += OVERLAP_LOG_PENALTY
     return ll
 
 
