@@ -262,7 +262,7 @@ def run_campaign(
                     feeds=tuple(f.path for f in p.files), feed_sha256=tuple(f.sha256 for f in p.files),
                     sensors=str(sensors), zones=str(zones), rules=str(rules),
                     config_sha256=config_sha, out_dir=str(out_dir), seed=seed, settings=settings,
-                    allow_gaps=allow_gaps)
+                    allow_gaps=allow_gaps, tables_thread=executor == "inline")
                 task = replace(task, key=chunk_key(task))
                 done = read_done(task.folder, task.key)
                 if done is not None:
