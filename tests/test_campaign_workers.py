@@ -8,6 +8,7 @@ from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
+import dask
 import pytest
 
 from harbourwatch import run_review, simulate_to_dir
@@ -15,17 +16,21 @@ from harbourwatch.campaign.schedule import WORKER_ENV, open_runner
 from harbourwatch.campaign.task import ChunkTask, chunk_key
 
 
-def test_local_workers_get_one_thread_per_pool_and_the_default_allocator(
+def test_local_workers_get_one_thread_per_pool_the_default_allocator_no_profiler(
         monkeypatch: pytest.MonkeyPatch) -> None:
     for k in WORKER_ENV:  # the user's own settings would win over ours
         monkeypatch.delenv(k, raising=False)
     before = dict(os.environ)
     with open_runner(scheduler=None, n_workers=1, progress=False) as runner:
         seen = {k: list(runner.client.run(os.getenv, k).values()) for k in WORKER_ENV}
+        profiler = list(runner.client.run(dask.config.get, "distributed.worker.profile.enabled")
+                        .values())
     # dask's own default would start the worker with MALLOC_TRIM_THRESHOLD_=65536
     assert seen == {k: [v] for k, v in WORKER_ENV.items()}
     assert seen["MALLOC_TRIM_THRESHOLD_"] == [None]
     assert seen["OPENBLAS_NUM_THREADS"] == ["1"]
+    assert profiler == [False]  # dask's default: True
+    assert dask.config.get("distributed.worker.profile.enabled") is True  # this process: as it was
     # the nanny writes the variables into this process before spawning: put back
     assert dict(os.environ) == before
 

@@ -17,7 +17,8 @@ C allocator hand freed memory back at once and fixes its threshold for
 mapping large blocks, so every large numpy temporary of the filter is mapped
 and zero-filled afresh: on the benchmark archive a chunk took three times
 the page faults and about a fifth more CPU time than the same chunk in a
-plain process. Workers of an existing cluster keep the environment they
+plain process. Nor do they run dask's task profiler (:data:`WORKER_CONFIG`).
+Workers of an existing cluster keep the environment and configuration they
 were started with (README, "Archive campaigns").
 
 ``executor="inline"`` runs the same tasks one after another in this process
@@ -37,7 +38,7 @@ from typing import Any, TypeVar
 
 from harbourwatch.errors import HarbourwatchError
 
-__all__ = ["Runner", "open_runner", "usable_cores", "WORKER_ENV"]
+__all__ = ["Runner", "open_runner", "usable_cores", "WORKER_ENV", "WORKER_CONFIG"]
 
 T = TypeVar("T")
 log = logging.getLogger("harbourwatch.campaign")
@@ -50,6 +51,9 @@ WORKER_ENV: dict[str, str | None] = {
     "NUMBA_NUM_THREADS": "1",
     "MALLOC_TRIM_THRESHOLD_": None,
 }
+#: Dask configuration of the local workers: no task profiler (a thread that samples
+#: the running task's stack every 10 ms, for a dashboard that is not started).
+WORKER_CONFIG: dict[str, Any] = {"distributed.worker.profile.enabled": False}
 
 
 def usable_cores() -> int:
@@ -131,7 +135,8 @@ def _local_cluster(factory: Callable[..., Any], n: int) -> Any:
 
     before = dict(os.environ)
     try:
-        with dask.config.set({"distributed.nanny.pre-spawn-environ": dict(WORKER_ENV)}):
+        with dask.config.set({"distributed.nanny.pre-spawn-environ": dict(WORKER_ENV),
+                              **WORKER_CONFIG}):
             return factory(n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
                            dashboard_address=None, silence_logs=logging.WARNING)
     finally:
