@@ -6,9 +6,18 @@ from midnight UTC for ``BENCH_CAMPAIGN_DAYS`` days, default 4) and written as
 one file per station per UTC day. It is then reviewed twice as a campaign of daily
 chunks with the default overlap of 60 minutes:
 
-* one process: the same chunk tasks run one after another in this process
-  (``executor="inline"``);
-* two workers: a ``LocalCluster`` of two single-threaded worker processes.
+* one process: the same chunk tasks run one after another in a fresh
+  process (``executor="inline"``), each as ``harbourwatch run`` runs: the
+  trajectory tables written on a second thread, which has the second core
+  to itself (unchanged from the first version of this benchmark);
+* two workers: a ``LocalCluster`` of two single-threaded worker processes
+  (one thread per numerical pool, the C allocator's defaults, no task
+  profiler; each chunk writes its tables on its own thread).
+
+Both runs start with an empty campaign folder (so both scan the files) and
+are timed from the call of ``run_campaign`` to its return. The machine
+should be otherwise idle: on a shared machine run the benchmark twice and
+compare the pairs.
 
 Printed: wall times, the speed-up (end to end, and of the chunk reviews
 alone), the peak memory (max RSS) of each worker, and on paper from these

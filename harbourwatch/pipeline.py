@@ -129,6 +129,7 @@ class _Request:
     allow_gaps: bool = False
     window: tuple[float, float] | None = None
     collect: Callable[[RunInputs, TrajectorySet, Sequence[Alert]], None] | None = None
+    tables_thread: bool = True
 
     def input_files(self) -> list[PathArg]:
         return [*self.feeds, self.sensors, self.zones, self.rules]
@@ -223,9 +224,10 @@ def _review_into(req: _Request, inp: RunInputs, out_dir: Path, bars: RunProgress
     warnings = _warnings(inp, scene, tset)
     # the trajectory tables are written on a second thread while the rules and the
     # reports are worked out: much of their time is spent in pyproj, numpy and
-    # pyarrow, which release the interpreter lock
+    # pyarrow, which release the interpreter lock (unless asked not to: a campaign worker)
     pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="harbourwatch-tables")
-    tables = pool.submit(_write_trajectory_tables, out_dir, tset, bars.stage("tables") or _quiet)
+    tables = (pool.submit(_write_trajectory_tables, out_dir, tset, bars.stage("tables") or _quiet)
+              if req.tables_thread else None)
     try:
         alerts = _apply_rules(req, inp, scene, tset, out_dir, bars, timings)
         provenance = run_record(
@@ -237,7 +239,8 @@ def _review_into(req: _Request, inp: RunInputs, out_dir: Path, bars: RunProgress
         _write_pages(req, inp, tset, alerts, provenance, out_dir, bars, timings)
     finally:
         pool.shutdown(wait=True)
-    timings["write_tables_s"] = tables.result()
+    timings["write_tables_s"] = (tables.result() if tables is not None else
+                                 _write_trajectory_tables(out_dir, tset, bars.stage("tables") or _quiet))
     bars.close()
 
     timings["total_s"] = time.perf_counter() - t0
@@ -302,6 +305,7 @@ def run_review(
     allow_gaps: bool = False,
     window: tuple[float, float] | None = None,
     collect: Callable[[RunInputs, TrajectorySet, Sequence[Alert]], None] | None = None,
+    tables_thread: bool = True,
 ) -> RunSummary:
     """Review plot feeds end to end and write every output into ``out``.
 
@@ -344,6 +348,10 @@ def run_review(
         the alerts once the outputs are written, inside the new folder before
         it is swapped in (a campaign chunk keeps what it needs for joining and
         radar health from there).
+    tables_thread
+        Write the trajectory tables on a second thread while the rules and
+        the reports are worked out (default); ``False`` writes them after, on
+        this thread (a campaign worker, whose core is its only one).
 
     Raises
     ------
@@ -358,7 +366,7 @@ def run_review(
     req = _Request(feeds=feeds, sensors=sensors, zones=zones, rules=rules, out=out,
                    settings=settings or FilterSettings(), seed=seed, tile_url=tile_url,
                    screenshots=screenshots, display_tz=display_tz, allow_gaps=allow_gaps,
-                   window=window, collect=collect)
+                   window=window, collect=collect, tables_thread=tables_thread)
     from harbourwatch.report._fmt import display_zone
 
     display_zone(display_tz)  # an unknown zone fails here, before any work

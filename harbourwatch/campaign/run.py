@@ -13,6 +13,7 @@ import shutil
 import sys
 import time
 from collections.abc import Sequence
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import asdict, dataclass, field, replace
 from os import PathLike
 from pathlib import Path
@@ -52,12 +53,15 @@ from harbourwatch.io.timefmt import format_utc_one
 from harbourwatch.io.toml_files import load_rules, load_sensors
 from harbourwatch.io.zone_file import load_zones
 from harbourwatch.scene.geodesy import LocalFrame
+from harbourwatch.trajectories import Trajectory
 
 __all__ = ["run_campaign", "CampaignSummary", "ChunkOutcome"]
 
 log = logging.getLogger("harbourwatch.campaign")
 PathArg = str | PathLike[str]
 LOG_FILE = "campaign.log"
+#: a finished chunk's boundary trajectories, trajectory spans and alert rows
+_Loaded = tuple[dict[str, Trajectory], dict[str, tuple[float, float]], list[dict[str, str]]]
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -247,6 +251,7 @@ def run_campaign(
         log.info("campaign into %s: chunks of %g h, overlap %g min", out_dir, chunk_h, overlap_min)
         config_sha = (sha256_file(sensors), sha256_file(zones), sha256_file(rules))
         outcomes: dict[str, ChunkOutcome] = {}
+        loaded: dict[str, _Loaded] = {}
         with open_runner(scheduler=scheduler, executor=executor, n_workers=n_workers,
                          progress=progress) as runner:
             where, workers = runner.where, runner.workers()
@@ -262,7 +267,7 @@ def run_campaign(
                     feeds=tuple(f.path for f in p.files), feed_sha256=tuple(f.sha256 for f in p.files),
                     sensors=str(sensors), zones=str(zones), rules=str(rules),
                     config_sha256=config_sha, out_dir=str(out_dir), seed=seed, settings=settings,
-                    allow_gaps=allow_gaps)
+                    allow_gaps=allow_gaps, tables_thread=executor == "inline")
                 task = replace(task, key=chunk_key(task))
                 done = read_done(task.folder, task.key)
                 if done is not None:
@@ -280,6 +285,7 @@ def run_campaign(
                            "bad_input": False}
                 if res["status"] == "done":
                     outcomes[t.name] = ChunkOutcome(name=t.name, status="done", result=res)
+                    _prefetch(loaded, out_dir, t.name)
                     log.info("chunk %s: reviewed on %s in %.1f s (attempt %d): %d trajectories, "
                              "%d alerts", t.name, res["worker"], res["seconds"], res["attempt"],
                              res["trajectories"], res["alerts"])
@@ -293,7 +299,8 @@ def run_campaign(
         ordered = tuple(outcomes[p.name] for p in plans)
         tick = time.perf_counter()
         combined = _combine(out_dir, plans, ordered, sensor_cfg=sensor_cfg, zone_cfg=zone_cfg,
-                            rule_cfg=rule_cfg, seed=seed, overlap_s=60.0 * overlap_min)
+                            rule_cfg=rule_cfg, seed=seed, overlap_s=60.0 * overlap_min,
+                            loaded=loaded)
         timings["combine_s"] = time.perf_counter() - tick
         summary = CampaignSummary(
             out_dir=out_dir, chunks=ordered, file_failures=tuple(file_failures),
@@ -312,29 +319,57 @@ def run_campaign(
             h.close()
 
 
+def _prefetch(loaded: dict[str, _Loaded], out_dir: Path, name: str) -> None:
+    """Read a chunk that just finished while the others are reviewed (the join needs it later)."""
+    try:
+        loaded[name] = _load_chunk(out_dir, name)
+    except Exception as exc:  # read again when combining, where an error is reported
+        log.info("chunk %s: its outputs are read again at the end (%s)", name, exc)
+
+
+def _load_chunk(out_dir: Path, name: str) -> _Loaded:
+    """What the join and the alerts need of one finished chunk: boundary states, spans, alerts."""
+    folder = out_dir / CHUNKS_DIR / name
+    boundary, spans = load_states(folder)
+    return boundary, spans, read_alert_rows(folder / "alerts.csv")
+
+
+def _track_tables(out_dir: Path, chunks: Sequence[tuple[str, tuple[float, float], Path]],
+                  piece_id: Any) -> tuple[int, Any]:
+    stats, extra = write_tracks(out_dir, chunks, piece_id)
+    return len(stats), write_trajectories(out_dir, stats, extra)
+
+
 def _combine(out_dir: Path, plans: Sequence[Any], outcomes: Sequence[ChunkOutcome], *,
-             sensor_cfg: Any, zone_cfg: Any, rule_cfg: Any, seed: int, overlap_s: float
-             ) -> dict[str, Any]:
-    """Join the finished chunks and write the tables, the catalogue and the index page."""
+             sensor_cfg: Any, zone_cfg: Any, rule_cfg: Any, seed: int, overlap_s: float,
+             loaded: dict[str, _Loaded] | None = None) -> dict[str, Any]:
+    """Join the finished chunks and write the tables, the catalogue and the index page.
+
+    ``loaded`` holds what was read of chunks as they finished (while others
+    were still reviewed); the rest is read here. ``tracks.parquet`` and
+    ``trajectories.parquet`` are written on a second thread (mostly pyarrow,
+    shapely: off the interpreter lock) while the alerts are combined.
+    """
     from harbourwatch.campaign.page import write_index
 
+    loaded = loaded if loaded is not None else {}
     done = [(p, o) for p, o in zip(plans, outcomes, strict=True) if o.status in ("done", "skipped")]
-    pieces = []
+    pieces, rows = [], {}
     for p, _ in done:
-        folder = out_dir / CHUNKS_DIR / p.name
-        boundary, spans = load_states(folder)
+        got = loaded.get(p.name)
+        boundary, spans, rows[p.name] = got if got is not None else _load_chunk(out_dir, p.name)
         pieces.append(ChunkPieces(name=p.name, core=p.core, boundary=boundary, spans=spans))
     join = join_chunks(pieces, overlap_s=overlap_s)
     log.info("joined across chunk boundaries: %d matches, %d trajectories rebuilt from pieces",
              len(join.matches), len(join.joined))
-    frame = LocalFrame.around([s.lat_deg for s in sensor_cfg], [s.lon_deg for s in sensor_cfg])
-    rows = {p.name: read_alert_rows(out_dir / CHUNKS_DIR / p.name / "alerts.csv") for p, _ in done}
-    cores = [(p.name, p.core[0], p.core[1]) for p, _ in done]
-    alerts = combine_alerts(rows, join, zones=zone_cfg, rules=rule_cfg, frame=frame, seed=seed,
-                            cores=cores)
-    stats, extra = write_tracks(out_dir, [(p.name, p.core, out_dir / CHUNKS_DIR / p.name)
-                                          for p, _ in done], join.piece_id)
-    traj_table = write_trajectories(out_dir, stats, extra)
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="harbourwatch-catalogue") as pool:
+        tables = pool.submit(_track_tables, out_dir, [(p.name, p.core, out_dir / CHUNKS_DIR / p.name)
+                                                      for p, _ in done], join.piece_id)
+        frame = LocalFrame.around([s.lat_deg for s in sensor_cfg], [s.lon_deg for s in sensor_cfg])
+        cores = [(p.name, p.core[0], p.core[1]) for p, _ in done]
+        alerts = combine_alerts(rows, join, zones=zone_cfg, rules=rule_cfg, frame=frame, seed=seed,
+                                cores=cores)
+        n_trajectories, traj_table = tables.result()
     runs, health = [], []
     for p, o in zip(plans, outcomes, strict=True):
         r = o.result
@@ -355,7 +390,7 @@ def _combine(out_dir: Path, plans: Sequence[Any], outcomes: Sequence[ChunkOutcom
     write_catalogue(out_dir, runs=runs, trajectories=traj_table, alerts=alerts_table(alerts),
                     health=health)
     write_index(out_dir, runs=runs, alerts=alerts, health=health)
-    return {"trajectories": len(stats), "joined": len(join.joined), "alerts": len(alerts),
+    return {"trajectories": n_trajectories, "joined": len(join.joined), "alerts": len(alerts),
             "matches": [list(m) for m in join.matches]}
 
 

@@ -62,6 +62,9 @@ class ChunkTask:
     seed: int = 0
     settings: FilterSettings = field(default_factory=FilterSettings)
     allow_gaps: bool = False
+    #: write the trajectory tables on a second thread (only where a core is free: inline);
+    #: how the chunk runs, not what it gives, so not part of the key
+    tables_thread: bool = False
     key: str = ""
 
     @property
@@ -222,6 +225,7 @@ def run_chunk(task: ChunkTask) -> dict[str, Any]:
             list(task.feeds), sensors=task.sensors, zones=task.zones, rules=task.rules,
             out=run_dir, settings=task.settings, seed=task.seed, progress=False,
             window=task.window, collect=collect, allow_gaps=task.allow_gaps,
+            tables_thread=task.tables_thread,
         )
         _save_states(run_dir / STATES_FILE, *kept.pop("states"))
         result = {
