@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 
 from harbourwatch.filter import FilterOutput, run_filter
-from harbourwatch.io.atomic import atomic_write_text
+from harbourwatch.io.atomic import atomic_write_chunks, atomic_write_text
 from harbourwatch.io.inputs import RunInputs
 from harbourwatch.io.outdir import check_out_folder, run_folder
 from harbourwatch.io.records import FilterSettings
@@ -36,9 +36,9 @@ from harbourwatch.scene.build import LocalScene, into_local_frame
 from harbourwatch.scene.checks import clutter_warnings
 from harbourwatch.trajectories import (
     TrajectorySet,
-    as_seen_csv_text,
-    tracks_csv_text,
-    trajectories_geojson,
+    as_seen_csv_chunks,
+    geojson_chunks,
+    tracks_csv_chunks,
 )
 from harbourwatch.units import CAUTION
 
@@ -90,20 +90,20 @@ class RunSummary:
 
 
 def _write_trajectory_tables(out_dir: Path, tset: TrajectorySet, progress: Callback) -> float:
-    """Write tracks.csv, as_seen.csv and trajectories.geojson; return the seconds taken."""
+    """Write tracks.csv, as_seen.csv and trajectories.geojson; return the seconds taken.
+
+    Each is written chunk by chunk into its temporary file (never one text in memory).
+    """
     t = time.perf_counter()
     n_tracks = sum(int(tr.time.size) for tr in tset)
     n_seen = int(tset.as_seen.time.size)
     total = n_tracks + n_seen + len(tset)
     progress(0, total)
-    atomic_write_text(out_dir / "tracks.csv", tracks_csv_text(tset))
+    atomic_write_chunks(out_dir / "tracks.csv", tracks_csv_chunks(tset))
     progress(n_tracks, total)
-    atomic_write_text(out_dir / "as_seen.csv", as_seen_csv_text(tset))
+    atomic_write_chunks(out_dir / "as_seen.csv", as_seen_csv_chunks(tset))
     progress(n_tracks + n_seen, total)
-    atomic_write_text(
-        out_dir / "trajectories.geojson",
-        json.dumps(trajectories_geojson(tset), separators=(",", ":")) + "\n",
-    )
+    atomic_write_chunks(out_dir / "trajectories.geojson", geojson_chunks(tset))
     progress(total, total)
     return time.perf_counter() - t
 
