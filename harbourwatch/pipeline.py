@@ -22,6 +22,7 @@ from harbourwatch.io.atomic import atomic_write_chunks, atomic_write_text
 from harbourwatch.io.inputs import RunInputs
 from harbourwatch.io.outdir import check_out_folder, run_folder
 from harbourwatch.io.records import FilterSettings
+from harbourwatch.io.spill import SpillStore
 from harbourwatch.io.timefmt import format_utc_one
 from harbourwatch.progress import RunProgress
 from harbourwatch.report.provenance import run_record
@@ -154,9 +155,11 @@ def _track(req: _Request, inp: RunInputs, bars: RunProgress,
     tracking = bars.stage("tracking")
     if tracking is not None:
         tracking(0, len(scene.scans))  # the bar shows from the first scan on
+    # finished trajectories go to an unlinked temporary file (memory stays flat along a long
+    # feed); it is freed with the last trajectory that refers to it
     fout = run_filter(
         scene.scans, scene.sensors, req.settings,
-        birth_regions=scene.birth_regions, progress=tracking,
+        birth_regions=scene.birth_regions, progress=tracking, spill=SpillStore(),
     )
     timings["filter_s"] = time.perf_counter() - t
     feed_start = float(inp.plots.time.min()) if len(inp.plots) else 0.0

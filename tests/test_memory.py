@@ -9,9 +9,11 @@ import pytest
 
 from harbourwatch.errors import OutputError
 from harbourwatch.io.atomic import atomic_write_chunks
+from harbourwatch.io.spill import SpillStore
 from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.trajectories import (
     AsSeenTable,
+    SpilledTrajectory,
     Trajectory,
     TrajectorySet,
     as_seen_csv_chunks,
@@ -19,6 +21,7 @@ from harbourwatch.trajectories import (
     tracks_csv_chunks,
     trajectories_geojson,
 )
+from harbourwatch.trajectories._records import SPILLED_ARRAYS
 
 T0 = 1_777_874_400.0  # 2026-05-04T06:00:00Z
 
@@ -96,3 +99,102 @@ def test_a_chunk_that_fails_leaves_no_file_and_keeps_the_old_one(tmp_path):
     with pytest.raises(OutputError):
         atomic_write_chunks(tmp_path / "tracks.csv" / "x", iter(["a\n"]))
 
+
+# --- the spill store ---------------------------------------------------------------------
+
+
+def test_spill_round_trip_keeps_dtype_shape_and_values(tmp_path):
+    rng = np.random.default_rng(1)
+    groups = [
+        [rng.normal(size=(n, 4, 4)), rng.integers(-1, 99, n), np.arange(n, dtype=np.float64)]
+        for n in (0, 1, 7, 300)
+    ]
+    with SpillStore(folder=str(tmp_path), cache_bytes=10_000) as store:  # a cache of ~1 group
+        keys = [store.put(g) for g in groups]
+        for _ in range(2):  # read again after eviction: from the file, same values
+            for key, g in zip(keys, groups, strict=True):
+                back = store.get(key)
+                assert [(a.dtype, a.shape) for a in back] == [(a.dtype, a.shape) for a in g]
+                assert all(np.array_equal(a, b) for a, b in zip(back, g, strict=True))
+        assert store.bytes_written == sum(a.nbytes for g in groups for a in g)
+        assert len(store) == 4
+        with pytest.raises(ValueError):  # read-only: a read may be shared through the cache
+            store.get(keys[2])[0][0, 0, 0] = 5.0
+
+
+def test_spill_file_never_shows_in_the_folder_even_on_error(tmp_path):
+    with pytest.raises(RuntimeError), SpillStore(folder=str(tmp_path)) as store:
+        store.put([np.zeros(1000)])
+        assert list(tmp_path.iterdir()) == []  # unlinked from the start: nothing to clean up
+        raise RuntimeError("a run that fails")
+    assert list(tmp_path.iterdir()) == []
+    with pytest.raises(ValueError):  # closed with the error: its file (and space) is gone
+        store.get(0)
+
+
+def test_spill_reads_from_two_threads_agree():
+    from concurrent.futures import ThreadPoolExecutor
+
+    rng = np.random.default_rng(2)
+    groups = [[rng.normal(size=(int(n), 4))] for n in rng.integers(1, 500, 64)]
+    store = SpillStore(cache_bytes=50_000)
+    keys = [store.put(g) for g in groups]
+
+    def check(order):
+        return all(np.array_equal(store.get(keys[k])[0], groups[k][0]) for k in order)
+
+    with ThreadPoolExecutor(2) as pool:
+        orders = [rng.permutation(64) for _ in range(8)]
+        assert all(pool.map(check, orders))
+
+
+def _spilled_copy(ts: TrajectorySet, store: SpillStore) -> TrajectorySet:
+    spilled = []
+    for t in ts:
+        key = store.put([getattr(t, name) for name in SPILLED_ARRAYS])
+        spilled.append(SpilledTrajectory(id=t.id, store=store, key=key, existence=t.existence,
+                                         end_probability=t.end_probability,
+                                         alive_at_end=t.alive_at_end, extent=t.extent))
+    return TrajectorySet(trajectories=tuple(spilled), frame=ts.frame, as_seen=ts.as_seen,
+                         feed_start=ts.feed_start, feed_end=ts.feed_end)
+
+
+def test_a_spilled_trajectory_is_the_trajectory(rng):
+    ts = _set(4, sized=True)
+    sp = _spilled_copy(ts, SpillStore(cache_bytes=0))  # no cache: every access reads the file
+    for a, b in zip(ts, sp, strict=True):
+        assert isinstance(b, Trajectory) and b.id == a.id and b.extent == a.extent
+        for name in SPILLED_ARRAYS:
+            assert np.array_equal(getattr(a, name), getattr(b, name)), name
+        assert (b.start, b.end, b.size) == (a.start, a.end, a.size)
+        assert np.array_equal(a.position_sd, b.position_sd)
+        seed = int(rng.integers(1 << 30))
+        assert np.array_equal(a.sample(np.random.default_rng(seed), 3),
+                              b.sample(np.random.default_rng(seed), 3))
+    assert "".join(tracks_csv_chunks(sp, rows=5)) == "".join(tracks_csv_chunks(ts))
+    assert "".join(geojson_chunks(sp)) == "".join(geojson_chunks(ts))
+
+
+def test_the_filter_with_a_spill_store_gives_the_same_trajectories():
+    from harbourwatch.filter import run_filter
+    from harbourwatch.io.records import FilterSettings
+    from tests.tpmbm_synth import Radar, Vessel, make_feed
+
+    radar = Radar(site=(0.0, 0.0), period=3.0, max_range=4000.0, clutter_per_scan=5.0)
+    vessels = [Vessel(0.0, 150.0, (-1000.0, -1000.0), (0.0, 4.0)),  # gone long before the end
+               Vessel(100.0, 300.0, (1500.0, 500.0), (-3.0, 1.0)),
+               Vessel(0.0, 1500.0, (-2000.0, 1500.0), (3.0, -1.0))]  # present to the end
+    feed = make_feed(vessels, [radar], 1500.0, seed=7)
+    plain = run_filter(feed.scans, feed.sensors, FilterSettings())
+    store = SpillStore()
+    spilled = run_filter(feed.scans, feed.sensors, FilterSettings(), spill=store)
+    assert sum(isinstance(t, SpilledTrajectory) for t in spilled.trajectories) >= 2
+    assert not any(isinstance(t, SpilledTrajectory) for t in plain.trajectories)
+    assert store.bytes_written > 0
+    assert {**spilled.stats, "seconds": 0} == {**plain.stats, "seconds": 0}
+    assert [t.id for t in spilled.trajectories] == [t.id for t in plain.trajectories]
+    for a, b in zip(plain.trajectories, spilled.trajectories, strict=True):
+        assert (a.existence, a.end_probability, a.alive_at_end) == (
+            b.existence, b.end_probability, b.alive_at_end)
+        for name in SPILLED_ARRAYS:
+            assert np.array_equal(getattr(a, name), getattr(b, name)), name

@@ -24,8 +24,9 @@ from harbourwatch.filter._kernels import rts_smooth_chain
 from harbourwatch.filter._nodes import NodeStore
 from harbourwatch.filter.output import FilterOutput
 from harbourwatch.io.records import FilterSettings
+from harbourwatch.io.spill import SpillStore
 from harbourwatch.models.extent import hull_length
-from harbourwatch.trajectories import AsSeenTable, Trajectory
+from harbourwatch.trajectories import AsSeenTable, SpilledTrajectory, Trajectory
 
 if TYPE_CHECKING:
     from harbourwatch.filter.tpmbm import _Filter
@@ -61,6 +62,7 @@ class FilterEnd:
     as_seen: Sequence[AsSeenRows]
     stats: dict[str, Any]
     log: Iterable[str]
+    spill: SpillStore | None = None  # where the finished pieces' arrays were spilled
 
 
 class Piece(NamedTuple):
@@ -74,6 +76,14 @@ class Piece(NamedTuple):
     end_probability: float
     alive_at_end: bool
     extent: tuple[float, ...] | None
+    key: int = -1  # spilled: the arrays' key in the spill store (``arrays`` is then empty)
+    plots_used: int = -1  # spilled: the number of plots in the trajectory
+
+
+def spill_piece(p: Piece, store: SpillStore) -> Piece:
+    """The piece with its arrays written to ``store`` and dropped from memory."""
+    plots_used = int((p.arrays[7] >= 0).sum())
+    return p._replace(arrays=(), key=store.put(p.arrays), plots_used=plots_used)
 
 
 def cluster_pieces(c: Cluster, nodes: NodeStore, st: FilterSettings, last_scan: float) -> list[Piece]:
@@ -124,7 +134,8 @@ def cluster_pieces(c: Cluster, nodes: NodeStore, st: FilterSettings, last_scan: 
 
 
 def estimate_retired(
-    retired: Sequence[Cluster], nodes: NodeStore, st: FilterSettings, last_scan: float
+    retired: Sequence[Cluster], nodes: NodeStore, st: FilterSettings, last_scan: float,
+    spill: SpillStore | None = None,
 ) -> tuple[list[Piece], list[Cluster]]:
     """Estimate the retired clusters that nothing can change any more.
 
@@ -137,8 +148,8 @@ def estimate_retired(
     Returns
     -------
     pieces, waiting
-        The smoothed trajectories of the clusters estimated, and the clusters
-        kept for later.
+        The smoothed trajectories of the clusters estimated (their arrays
+        written to ``spill`` when given), and the clusters kept for later.
     """
     horizon = last_scan - st.as_seen_window_s
     t = nodes.t
@@ -154,7 +165,8 @@ def estimate_retired(
             default=-np.inf,
         )
         if latest < horizon:
-            pieces.extend(cluster_pieces(c, nodes, st, last_scan))
+            done = cluster_pieces(c, nodes, st, last_scan)
+            pieces.extend(done if spill is None else [spill_piece(p, spill) for p in done])
         else:
             waiting.append(c)
     return pieces, waiting
@@ -174,6 +186,17 @@ def build_output(end: FilterEnd) -> FilterOutput:
     for k, piece in enumerate(chosen):
         tid = f"T{k + 1}"
         ids[piece.bid] = tid
+        if piece.key >= 0:
+            assert end.spill is not None
+            used_plots += piece.plots_used
+            trajectories.append(
+                SpilledTrajectory(
+                    id=tid, store=end.spill, key=piece.key, existence=piece.existence,
+                    end_probability=piece.end_probability, alive_at_end=piece.alive_at_end,
+                    extent=piece.extent,
+                )
+            )
+            continue
         t, ms, Ps, fm, fP, pm, pP, plots, sensors = piece.arrays
         used_plots += int((plots >= 0).sum())
         trajectories.append(

@@ -11,7 +11,7 @@ run's tables never exist as one text in memory.
 
 from __future__ import annotations
 
-from harbourwatch.trajectories._records import AsSeenTable, Trajectory
+from harbourwatch.trajectories._records import AsSeenTable, SpilledTrajectory, Trajectory
 from harbourwatch.trajectories._set import (
     AS_SEEN_COLUMNS,
     TRACK_COLUMNS,
@@ -27,6 +27,7 @@ from harbourwatch.trajectories._set import (
 
 __all__ = [
     "Trajectory",
+    "SpilledTrajectory",
     "TrajectorySet",
     "AsSeenTable",
     "tracks_csv_text",

@@ -10,13 +10,15 @@ they could be known at each moment (:class:`AsSeenTable`).
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
+from harbourwatch.io.spill import SpillStore
 from harbourwatch.models.gaussian import ffbs_sample
 
-__all__ = ["Trajectory", "AsSeenTable"]
+__all__ = ["Trajectory", "SpilledTrajectory", "AsSeenTable", "SPILLED_ARRAYS"]
 
 Array = NDArray[np.float64]
 
@@ -127,6 +129,55 @@ class Trajectory:
             rng, n, self.time, self.filt_mean, self.filt_cov, self.pred_mean, self.pred_cov
         )
 
+
+#: The per-state arrays of a trajectory, in the order a spilled trajectory stores them.
+SPILLED_ARRAYS = ("time", "mean", "cov", "filt_mean", "filt_cov", "pred_mean", "pred_cov",
+                  "plot_ids", "sensor_ids")
+
+
+def _spilled(k: int) -> Any:
+    def read(self: SpilledTrajectory) -> Any:
+        return self.store.get(self.key)[k]
+
+    read.__doc__ = f"``{SPILLED_ARRAYS[k]}``, read back from the spill store."
+    return property(read)
+
+
+class SpilledTrajectory(Trajectory):
+    """A :class:`Trajectory` whose per-state arrays live in a :class:`~harbourwatch.io.spill.SpillStore`.
+
+    The filter spills each trajectory it finishes long before the end of the
+    feed, so that a long run's memory does not grow with the number of
+    trajectories behind it; every array attribute reads the arrays back
+    (the store caches the ones read last). The scalars stay in memory. The
+    store lives as long as any trajectory that refers to it. Same values,
+    same behaviour as an in-memory :class:`Trajectory` (but
+    ``dataclasses.replace`` needs an in-memory one).
+    """
+
+    store: SpillStore
+    key: int
+
+    def __init__(self, *, id: str, store: SpillStore, key: int, existence: float,
+                 end_probability: float = 1.0, alive_at_end: bool = False,
+                 extent: tuple[float, ...] | None = None) -> None:
+        for name, value in (("id", id), ("store", store), ("key", key), ("existence", existence),
+                            ("end_probability", end_probability), ("alive_at_end", alive_at_end),
+                            ("extent", extent)):
+            object.__setattr__(self, name, value)
+
+    def __repr__(self) -> str:
+        return f"SpilledTrajectory(id={self.id!r}, key={self.key})"
+
+    time = _spilled(0)
+    mean = _spilled(1)
+    cov = _spilled(2)
+    filt_mean = _spilled(3)
+    filt_cov = _spilled(4)
+    pred_mean = _spilled(5)
+    pred_cov = _spilled(6)
+    plot_ids = _spilled(7)
+    sensor_ids = _spilled(8)
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
