@@ -198,3 +198,45 @@ def test_the_filter_with_a_spill_store_gives_the_same_trajectories():
             b.existence, b.end_probability, b.alive_at_end)
         for name in SPILLED_ARRAYS:
             assert np.array_equal(getattr(a, name), getattr(b, name)), name
+
+
+# --- the as-seen log ---------------------------------------------------------------------
+
+
+def _as_seen_reference(rows, ids):
+    """The as-seen table as it was built in one piece from every scan's rows."""
+    tt = np.concatenate([np.full(r.bids.size, r.time) for r in rows])
+    bids = np.concatenate([r.bids for r in rows])
+    names = {int(b): ids.get(int(b), f"P{int(b)}") for b in np.unique(bids)}
+    track = np.array([names[int(b)] for b in bids], dtype="<U16")
+    order = np.lexsort((track, tt))
+    cols = {name: np.concatenate([getattr(r, name) for r in rows])[order]
+            for name in ("mean", "sd", "existence", "length")}
+    return {"time": tt[order], "track": track[order], **cols}
+
+
+@pytest.mark.parametrize("spilled", [False, True])
+def test_as_seen_log_in_blocks_gives_the_one_piece_table(monkeypatch, spilled):
+    from harbourwatch.filter import _estimate
+
+    rng = np.random.default_rng(5)
+    rows = []
+    t = T0
+    for _ in range(300):
+        t += float(rng.choice([0.0, 1.25, 2.5]))  # two radars' scans may share a time
+        n = int(rng.integers(1, 9))
+        rows.append(_estimate.AsSeenRows(
+            time=t, bids=rng.choice(40, n, replace=False).astype(np.int64),
+            mean=rng.normal(size=(n, 4)), sd=rng.uniform(1, 50, n), existence=rng.uniform(size=n),
+            length=np.where(rng.uniform(size=n) < 0.3, 80.0, np.nan)))
+    ids = {b: f"T{k + 1}" for k, b in enumerate(rng.permutation(40)[:25].tolist())}
+    monkeypatch.setattr(_estimate, "AS_SEEN_BLOCK", 37)
+    log = _estimate.AsSeenLog(SpillStore() if spilled else None)
+    for r in rows:
+        log.append(r)
+    table = log.table(ids)
+    ref = _as_seen_reference(rows, ids)
+    assert log.rows == ref["time"].size
+    for name, want in ref.items():
+        assert np.array_equal(getattr(table, name), want, equal_nan=name == "length"), name
+    assert table.track.dtype.itemsize < np.dtype("<U16").itemsize  # as wide as the longest id

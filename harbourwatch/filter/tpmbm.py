@@ -75,7 +75,7 @@ from harbourwatch.filter._cells import (
     update_partitions,
 )
 from harbourwatch.filter._cluttermap import ClutterMap
-from harbourwatch.filter._estimate import AsSeenRows, FilterEnd, build_output, record_as_seen
+from harbourwatch.filter._estimate import FilterEnd, build_output, record_as_seen
 from harbourwatch.filter._extscan import (
     cells_over_vessels,
     established,
@@ -161,7 +161,7 @@ class _Filter:
         self.scan_count = 0
         self.scan_index = 0
         self.last_time = -math.inf
-        self.as_seen: list[AsSeenRows] = []
+        self.as_seen = est.AsSeenLog(spill)
 
     # -- bookkeeping -------------------------------------------------------------------
     def count_cap(self, name: str) -> None:
