@@ -162,6 +162,7 @@ def _track(req: _Request, inp: RunInputs, bars: RunProgress,
         birth_regions=scene.birth_regions, progress=tracking, spill=SpillStore(),
     )
     timings["filter_s"] = time.perf_counter() - t
+    scene = replace(scene, scans=())  # the scans in the local frame serve the filter only
     feed_start = float(inp.plots.time.min()) if len(inp.plots) else 0.0
     feed_end = float(inp.plots.time.max()) if len(inp.plots) else 0.0
     tset = TrajectorySet(

@@ -262,6 +262,8 @@ def build_output(end: FilterEnd) -> FilterOutput:
     for c in end.clusters:
         chosen.extend(cluster_pieces(c, nodes, st, end.last_time))
     chosen.sort(key=lambda x: (x.start, x.east, x.bid))
+    n_nodes = nodes.n
+    nodes.release()  # every chain is copied into ``chosen``: room for the as-seen table
     trajectories: list[Trajectory] = []
     ids: dict[int, str] = {}
     used_plots = 0
@@ -301,7 +303,7 @@ def build_output(end: FilterEnd) -> FilterOutput:
         )
     chosen.clear()
     as_seen = end.as_seen.table(ids) if end.as_seen.rows else AsSeenTable.empty()
-    stats = {**end.stats, "plots_in_trajectories": used_plots, "nodes": nodes.n}
+    stats = {**end.stats, "plots_in_trajectories": used_plots, "nodes": n_nodes}
     return FilterOutput(trajectories=trajectories, as_seen=as_seen, stats=stats, log=list(end.log))
 
 
