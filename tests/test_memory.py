@@ -118,6 +118,11 @@ def test_spill_round_trip_keeps_dtype_shape_and_values(tmp_path):
                 assert all(np.array_equal(a, b) for a, b in zip(back, g, strict=True))
         assert store.bytes_written == sum(a.nbytes for g in groups for a in g)
         assert len(store) == 4
+        first = store.put_each(groups[3])  # one group per array, consecutive keys
+        assert len(store) == 4 + len(groups[3])
+        for k, a in enumerate(groups[3]):
+            (back,) = store.get(first + k)
+            assert back.dtype == a.dtype and np.array_equal(back, a)
         with pytest.raises(ValueError):  # read-only: a read may be shared through the cache
             store.get(keys[2])[0][0, 0, 0] = 5.0
 
@@ -151,7 +156,7 @@ def test_spill_reads_from_two_threads_agree():
 def _spilled_copy(ts: TrajectorySet, store: SpillStore) -> TrajectorySet:
     spilled = []
     for t in ts:
-        key = store.put([getattr(t, name) for name in SPILLED_ARRAYS])
+        key = store.put_each([getattr(t, name) for name in SPILLED_ARRAYS])
         spilled.append(SpilledTrajectory(id=t.id, store=store, key=key, existence=t.existence,
                                          end_probability=t.end_probability,
                                          alive_at_end=t.alive_at_end, extent=t.extent))

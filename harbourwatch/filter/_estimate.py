@@ -158,14 +158,14 @@ class Piece(NamedTuple):
     end_probability: float
     alive_at_end: bool
     extent: tuple[float, ...] | None
-    key: int = -1  # spilled: the arrays' key in the spill store (``arrays`` is then empty)
+    key: int = -1  # spilled: the key of its first array in the spill store (``arrays`` empty)
     plots_used: int = -1  # spilled: the number of plots in the trajectory
 
 
 def spill_piece(p: Piece, store: SpillStore) -> Piece:
     """The piece with its arrays written to ``store`` and dropped from memory."""
     plots_used = int((p.arrays[7] >= 0).sum())
-    return p._replace(arrays=(), key=store.put(p.arrays), plots_used=plots_used)
+    return p._replace(arrays=(), key=store.put_each(p.arrays), plots_used=plots_used)
 
 
 def cluster_pieces(c: Cluster, nodes: NodeStore, st: FilterSettings, last_scan: float) -> list[Piece]:

@@ -29,7 +29,7 @@ from numpy.typing import NDArray
 __all__ = ["SpillStore", "CACHE_BYTES"]
 
 #: Bytes of recently read groups kept in memory (a trajectory read again soon costs nothing).
-CACHE_BYTES = 64 << 20
+CACHE_BYTES = 128 << 20
 
 
 class SpillStore:
@@ -55,18 +55,31 @@ class SpillStore:
 
     def put(self, arrays: Sequence[NDArray[Any]]) -> int:
         """Write a group of arrays; return its key for :meth:`get`."""
+        with self._lock:
+            return self._put(arrays)
+
+    def _put(self, arrays: Sequence[NDArray[Any]]) -> int:  # the caller holds the lock
         parts = [np.ascontiguousarray(a) for a in arrays]
         layout = tuple((a.dtype.str, a.shape) for a in parts)
         data = b"".join(a.tobytes() for a in parts)
-        with self._lock:
-            offset = self.bytes_written
-            view = memoryview(data)
-            while view:  # pwrite may write less than asked
-                done = os.pwrite(self._fd, view, offset + len(data) - len(view))
-                view = view[done:]
-            self.bytes_written += len(data)
-            self._index.append((offset, layout, len(data)))
-            return len(self._index) - 1
+        offset = self.bytes_written
+        view = memoryview(data)
+        while view:  # pwrite may write less than asked
+            done = os.pwrite(self._fd, view, offset + len(data) - len(view))
+            view = view[done:]
+        self.bytes_written += len(data)
+        self._index.append((offset, layout, len(data)))
+        return len(self._index) - 1
+
+    def put_each(self, arrays: Sequence[NDArray[Any]]) -> int:
+        """Write each array as a group of its own, under consecutive keys; return the first.
+
+        Array ``k`` is then ``get(first + k)[0]``: a reader that needs one
+        array reads only that one.
+        """
+        with self._lock:  # no other put in between: the keys are consecutive
+            keys = [self._put([a]) for a in arrays]
+        return keys[0] if keys else len(self._index)
 
     def get(self, key: int) -> tuple[NDArray[Any], ...]:
         """The arrays of group ``key``, as they were put (read-only: they may be shared)."""
@@ -78,8 +91,8 @@ class SpillStore:
                 self._cache.move_to_end(key)
                 return hit
             offset, layout, size = self._index[key]
-        buf = bytearray(size)
-        view = memoryview(buf)
+        buf = np.empty(size, np.uint8)  # not zero-filled: every byte is read into it
+        view = memoryview(buf.data)  # type: ignore[arg-type]
         got = 0
         while got < size:
             n = os.preadv(self._fd, [view[got:]], offset + got)
@@ -91,7 +104,7 @@ class SpillStore:
         for dtype, shape in layout:
             dt = np.dtype(dtype)
             count = int(np.prod(shape, dtype=np.int64))
-            a = np.frombuffer(buf, dt, count, pos).reshape(shape)
+            a = buf[pos : pos + count * dt.itemsize].view(dt).reshape(shape)
             a.flags.writeable = False
             out.append(a)
             pos += count * dt.itemsize

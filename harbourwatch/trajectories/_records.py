@@ -137,7 +137,7 @@ SPILLED_ARRAYS = ("time", "mean", "cov", "filt_mean", "filt_cov", "pred_mean", "
 
 def _spilled(k: int) -> Any:
     def read(self: SpilledTrajectory) -> Any:
-        return self.store.get(self.key)[k]
+        return self.store.get(self.key + k)[0]
 
     read.__doc__ = f"``{SPILLED_ARRAYS[k]}``, read back from the spill store."
     return property(read)
@@ -150,7 +150,10 @@ class SpilledTrajectory(Trajectory):
     feed, so that a long run's memory does not grow with the number of
     trajectories behind it; every array attribute reads the arrays back
     (the store caches the ones read last). The scalars stay in memory. The
-    store lives as long as any trajectory that refers to it. Same values,
+    store lives as long as any trajectory that refers to it. The arrays
+    are stored one group each (:meth:`~harbourwatch.io.spill.SpillStore.put_each`,
+    ``key`` is the first), so a reader of ``mean`` does not read the
+    covariances. Same values,
     same behaviour as an in-memory :class:`Trajectory` (but
     ``dataclasses.replace`` needs an in-memory one).
     """
