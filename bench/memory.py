@@ -6,6 +6,11 @@ false plots per scan per radar) simulated for 6 h and 24 h (and 7 days with
 in its own child process; the child's peak resident set (``wait4`` rusage)
 and wall time are printed, with the ratio 24 h / 6 h of the peaks (target
 at most 1.2). ``BENCH_MEMORY_HOURS`` (comma-separated) overrides the lengths.
+
+Each feed is simulated in a child process of its own too: on Linux a child's
+``ru_maxrss`` starts from the resident size of the parent it was forked from,
+so a parent that had just simulated 24 hours (about 3 GB) would show as the
+review run's peak.
 """
 
 from __future__ import annotations
@@ -25,11 +30,13 @@ def _line(label: str, value: str) -> None:
 
 def measure(hours: float) -> tuple[float, float]:
     """Simulate ``hours`` of the 'bench' scenario, review it; return (peak MB, wall s)."""
-    from harbourwatch import simulate_to_dir
-
     feed_dir = OUT / f"memory_{hours:g}h"
-    files = simulate_to_dir("bench", feed_dir, duration_s=hours * 3600.0, feed_format="csv.gz")
-    feed = next(p for p in files if p.name.startswith("plots"))
+    simulate = ("import sys; from harbourwatch import simulate_to_dir; "
+                "simulate_to_dir('bench', sys.argv[1], duration_s=float(sys.argv[2]), "
+                "feed_format='csv.gz')")
+    subprocess.run([sys.executable, "-c", simulate, str(feed_dir), str(hours * 3600.0)],
+                   check=True)
+    feed = next(p for p in sorted(feed_dir.iterdir()) if p.name.startswith("plots"))
     cmd = [sys.executable, "-m", "harbourwatch", "run", str(feed), "--sensors",
            str(feed_dir / "sensors.toml"), "--zones", str(feed_dir / "zones.geojson"),
            "--rules", str(feed_dir / "rules.toml"), "--out", str(feed_dir / "run"), "--quiet"]

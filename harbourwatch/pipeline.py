@@ -18,10 +18,11 @@ from typing import Any
 import numpy as np
 
 from harbourwatch.filter import FilterOutput, run_filter
-from harbourwatch.io.atomic import atomic_write_text
+from harbourwatch.io.atomic import atomic_write_chunks, atomic_write_text
 from harbourwatch.io.inputs import RunInputs
 from harbourwatch.io.outdir import check_out_folder, run_folder
 from harbourwatch.io.records import FilterSettings
+from harbourwatch.io.spill import SpillStore
 from harbourwatch.io.timefmt import format_utc_one
 from harbourwatch.progress import RunProgress
 from harbourwatch.report.provenance import run_record
@@ -36,9 +37,9 @@ from harbourwatch.scene.build import LocalScene, into_local_frame
 from harbourwatch.scene.checks import clutter_warnings
 from harbourwatch.trajectories import (
     TrajectorySet,
-    as_seen_csv_text,
-    tracks_csv_text,
-    trajectories_geojson,
+    as_seen_csv_chunks,
+    geojson_chunks,
+    tracks_csv_chunks,
 )
 from harbourwatch.units import CAUTION
 
@@ -90,20 +91,20 @@ class RunSummary:
 
 
 def _write_trajectory_tables(out_dir: Path, tset: TrajectorySet, progress: Callback) -> float:
-    """Write tracks.csv, as_seen.csv and trajectories.geojson; return the seconds taken."""
+    """Write tracks.csv, as_seen.csv and trajectories.geojson; return the seconds taken.
+
+    Each is written chunk by chunk into its temporary file (never one text in memory).
+    """
     t = time.perf_counter()
     n_tracks = sum(int(tr.time.size) for tr in tset)
     n_seen = int(tset.as_seen.time.size)
     total = n_tracks + n_seen + len(tset)
     progress(0, total)
-    atomic_write_text(out_dir / "tracks.csv", tracks_csv_text(tset))
+    atomic_write_chunks(out_dir / "tracks.csv", tracks_csv_chunks(tset))
     progress(n_tracks, total)
-    atomic_write_text(out_dir / "as_seen.csv", as_seen_csv_text(tset))
+    atomic_write_chunks(out_dir / "as_seen.csv", as_seen_csv_chunks(tset))
     progress(n_tracks + n_seen, total)
-    atomic_write_text(
-        out_dir / "trajectories.geojson",
-        json.dumps(trajectories_geojson(tset), separators=(",", ":")) + "\n",
-    )
+    atomic_write_chunks(out_dir / "trajectories.geojson", geojson_chunks(tset))
     progress(total, total)
     return time.perf_counter() - t
 
@@ -155,11 +156,14 @@ def _track(req: _Request, inp: RunInputs, bars: RunProgress,
     tracking = bars.stage("tracking")
     if tracking is not None:
         tracking(0, len(scene.scans))  # the bar shows from the first scan on
+    # finished trajectories go to an unlinked temporary file (memory stays flat along a long
+    # feed); it is freed with the last trajectory that refers to it
     fout = run_filter(
         scene.scans, scene.sensors, req.settings,
-        birth_regions=scene.birth_regions, progress=tracking,
+        birth_regions=scene.birth_regions, progress=tracking, spill=SpillStore(),
     )
     timings["filter_s"] = time.perf_counter() - t
+    scene = replace(scene, scans=())  # the scans in the local frame serve the filter only
     feed_start = float(inp.plots.time.min()) if len(inp.plots) else 0.0
     feed_end = float(inp.plots.time.max()) if len(inp.plots) else 0.0
     tset = TrajectorySet(

@@ -13,6 +13,7 @@ from harbourwatch.filter._kernels import warm_up
 from harbourwatch.filter.output import FilterOutput
 from harbourwatch.filter.tpmbm import run_tpmbm
 from harbourwatch.io.records import FilterSettings
+from harbourwatch.io.spill import SpillStore
 from harbourwatch.scene.records import BirthRegion, MeasurementScan, SensorModel
 
 __all__ = ["FilterOutput", "run_filter", "warm_up"]
@@ -25,10 +26,17 @@ def run_filter(
     *,
     birth_regions: Sequence[BirthRegion] = (),
     progress: Callable[[int, int], None] | None = None,
+    spill: SpillStore | None = None,
 ) -> FilterOutput:
     """Run the TPMBM filter over all scans (ordered by reference time).
 
     Trajectory ids are ``"T1"``, ``"T2"``, ... in order of start time (ties by
-    east coordinate), so that the same inputs give the same ids.
+    east coordinate), so that the same inputs give the same ids. With
+    ``spill``, each trajectory finished long before the end of the feed has
+    its arrays written to that store as soon as it is estimated and comes
+    back as a :class:`~harbourwatch.trajectories.SpilledTrajectory` (same
+    values; memory no longer grows with the feed's length); the store must
+    stay open while the output is used.
     """
-    return run_tpmbm(scans, sensors, settings, birth_regions=birth_regions, progress=progress)
+    return run_tpmbm(scans, sensors, settings, birth_regions=birth_regions, progress=progress,
+                     spill=spill)

@@ -12,7 +12,7 @@ the missed detections after it carry no information about where it went.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any, NamedTuple
 
@@ -24,8 +24,9 @@ from harbourwatch.filter._kernels import rts_smooth_chain
 from harbourwatch.filter._nodes import NodeStore
 from harbourwatch.filter.output import FilterOutput
 from harbourwatch.io.records import FilterSettings
+from harbourwatch.io.spill import SpillStore
 from harbourwatch.models.extent import hull_length
-from harbourwatch.trajectories import AsSeenTable, Trajectory
+from harbourwatch.trajectories import AsSeenTable, SpilledTrajectory, Trajectory
 
 if TYPE_CHECKING:
     from harbourwatch.filter.tpmbm import _Filter
@@ -49,6 +50,88 @@ class AsSeenRows(NamedTuple):
     length: NDArray[np.float64]  # hull length as known then (NaN: point-like)
 
 
+#: Rows of an as-seen block: the rows of many scans are kept (or spilled) as one block.
+AS_SEEN_BLOCK = 1 << 16
+
+
+class AsSeenLog:
+    """The as-seen rows of the run so far, gathered into blocks of about
+    :data:`AS_SEEN_BLOCK` rows, each spilled to ``spill`` when given (kept in
+    memory otherwise): the log costs the same few megabytes at any hour of a
+    long feed, and no per-scan arrays pile up.
+    """
+
+    def __init__(self, spill: SpillStore | None = None) -> None:
+        self.spill = spill
+        self.rows = 0
+        self._pending: list[AsSeenRows] = []
+        self._pending_rows = 0
+        self._blocks: list[int | tuple[NDArray[Any], ...]] = []
+
+    def append(self, r: AsSeenRows) -> None:
+        self._pending.append(r)
+        self._pending_rows += r.bids.size
+        self.rows += r.bids.size
+        if self._pending_rows >= AS_SEEN_BLOCK:
+            self._flush()
+
+    def _flush(self) -> None:
+        if not self._pending:
+            return
+        p = self._pending
+        block = (
+            np.concatenate([np.full(r.bids.size, r.time) for r in p]),
+            np.concatenate([r.bids for r in p]),
+            np.concatenate([r.mean for r in p]),
+            np.concatenate([r.sd for r in p]),
+            np.concatenate([r.existence for r in p]),
+            np.concatenate([r.length for r in p]),
+        )
+        self._blocks.append(block if self.spill is None else self.spill.put(block))
+        self._pending, self._pending_rows = [], 0
+
+    def blocks(self) -> Iterator[tuple[NDArray[Any], ...]]:
+        """``(time, bids, mean, sd, existence, length)`` of each block, in order of recording."""
+        self._flush()
+        for b in self._blocks:
+            if isinstance(b, tuple):
+                yield b
+            else:
+                assert self.spill is not None
+                yield self.spill.get(b)
+
+    def table(self, ids: dict[int, str]) -> AsSeenTable:
+        """The rows as a table sorted by (time, track), Bernoulli ``b`` named ``ids[b]`` or ``P<b>``.
+
+        The order of Bernoullis within a scan follows the order of the plots in
+        the input, which must not show in any output. Built in two passes over
+        the blocks (the keys, then each value column scattered into place), so
+        that only the final columns and a few index arrays exist at once.
+        """
+        tt = np.concatenate([b[0] for b in self.blocks()])
+        uniq, inv = np.unique(np.concatenate([b[1] for b in self.blocks()]), return_inverse=True)
+        names = np.array([ids.get(int(b), f"P{int(b)}") for b in uniq.tolist()])
+        rank = np.searchsorted(np.sort(names), names)  # sorting by rank is sorting by name
+        order = np.lexsort((rank[inv], tt))
+        track = names[inv[order]]
+        del inv, rank
+        where = np.empty_like(order)
+        where[order] = np.arange(order.size)  # the final row of each recorded row
+        del order
+        time = np.empty_like(tt)
+        time[where] = tt
+        del tt
+        out = [np.empty((self.rows, 4)), np.empty(self.rows), np.empty(self.rows), np.empty(self.rows)]
+        k = 0
+        for b in self.blocks():
+            n = b[0].size
+            for col, values in zip(out, b[2:], strict=True):
+                col[where[k : k + n]] = values
+            k += n
+        return AsSeenTable(time=time, track=track, mean=out[0], sd=out[1], existence=out[2],
+                           length=out[3])
+
+
 @dataclass(frozen=True, kw_only=True, eq=False)
 class FilterEnd:
     """What the recursion hands to the estimator when the last scan is processed."""
@@ -58,9 +141,10 @@ class FilterEnd:
     clusters: Sequence[Cluster]  # not yet estimated: retired ones first, then the live ones
     finished: Sequence[Piece]  # estimated when their clusters were finished
     last_time: float
-    as_seen: Sequence[AsSeenRows]
+    as_seen: AsSeenLog
     stats: dict[str, Any]
     log: Iterable[str]
+    spill: SpillStore | None = None  # where the finished pieces' arrays were spilled
 
 
 class Piece(NamedTuple):
@@ -74,6 +158,14 @@ class Piece(NamedTuple):
     end_probability: float
     alive_at_end: bool
     extent: tuple[float, ...] | None
+    key: int = -1  # spilled: the key of its first array in the spill store (``arrays`` empty)
+    plots_used: int = -1  # spilled: the number of plots in the trajectory
+
+
+def spill_piece(p: Piece, store: SpillStore) -> Piece:
+    """The piece with its arrays written to ``store`` and dropped from memory."""
+    plots_used = int((p.arrays[7] >= 0).sum())
+    return p._replace(arrays=(), key=store.put_each(p.arrays), plots_used=plots_used)
 
 
 def cluster_pieces(c: Cluster, nodes: NodeStore, st: FilterSettings, last_scan: float) -> list[Piece]:
@@ -124,7 +216,8 @@ def cluster_pieces(c: Cluster, nodes: NodeStore, st: FilterSettings, last_scan: 
 
 
 def estimate_retired(
-    retired: Sequence[Cluster], nodes: NodeStore, st: FilterSettings, last_scan: float
+    retired: Sequence[Cluster], nodes: NodeStore, st: FilterSettings, last_scan: float,
+    spill: SpillStore | None = None,
 ) -> tuple[list[Piece], list[Cluster]]:
     """Estimate the retired clusters that nothing can change any more.
 
@@ -137,8 +230,8 @@ def estimate_retired(
     Returns
     -------
     pieces, waiting
-        The smoothed trajectories of the clusters estimated, and the clusters
-        kept for later.
+        The smoothed trajectories of the clusters estimated (their arrays
+        written to ``spill`` when given), and the clusters kept for later.
     """
     horizon = last_scan - st.as_seen_window_s
     t = nodes.t
@@ -154,7 +247,8 @@ def estimate_retired(
             default=-np.inf,
         )
         if latest < horizon:
-            pieces.extend(cluster_pieces(c, nodes, st, last_scan))
+            done = cluster_pieces(c, nodes, st, last_scan)
+            pieces.extend(done if spill is None else [spill_piece(p, spill) for p in done])
         else:
             waiting.append(c)
     return pieces, waiting
@@ -168,12 +262,25 @@ def build_output(end: FilterEnd) -> FilterOutput:
     for c in end.clusters:
         chosen.extend(cluster_pieces(c, nodes, st, end.last_time))
     chosen.sort(key=lambda x: (x.start, x.east, x.bid))
+    n_nodes = nodes.n
+    nodes.release()  # every chain is copied into ``chosen``: room for the as-seen table
     trajectories: list[Trajectory] = []
     ids: dict[int, str] = {}
     used_plots = 0
     for k, piece in enumerate(chosen):
         tid = f"T{k + 1}"
         ids[piece.bid] = tid
+        if piece.key >= 0:
+            assert end.spill is not None
+            used_plots += piece.plots_used
+            trajectories.append(
+                SpilledTrajectory(
+                    id=tid, store=end.spill, key=piece.key, existence=piece.existence,
+                    end_probability=piece.end_probability, alive_at_end=piece.alive_at_end,
+                    extent=piece.extent,
+                )
+            )
+            continue
         t, ms, Ps, fm, fP, pm, pP, plots, sensors = piece.arrays
         used_plots += int((plots >= 0).sum())
         trajectories.append(
@@ -195,25 +302,8 @@ def build_output(end: FilterEnd) -> FilterOutput:
             )
         )
     chosen.clear()
-    if end.as_seen:
-        tt = np.concatenate([np.full(r.bids.size, r.time) for r in end.as_seen])
-        bids = np.concatenate([r.bids for r in end.as_seen])
-        names = {int(b): ids.get(int(b), f"P{int(b)}") for b in np.unique(bids)}
-        track = np.array([names[int(b)] for b in bids], dtype="<U16")
-        # rows by (time, track): the order of Bernoullis within a scan follows the order
-        # of the plots in the input, which must not show in any output
-        order = np.lexsort((track, tt))
-        as_seen = AsSeenTable(
-            time=tt[order],
-            track=track[order],
-            mean=np.concatenate([r.mean for r in end.as_seen])[order],
-            sd=np.concatenate([r.sd for r in end.as_seen])[order],
-            existence=np.concatenate([r.existence for r in end.as_seen])[order],
-            length=np.concatenate([r.length for r in end.as_seen])[order],
-        )
-    else:
-        as_seen = AsSeenTable.empty()
-    stats = {**end.stats, "plots_in_trajectories": used_plots, "nodes": nodes.n}
+    as_seen = end.as_seen.table(ids) if end.as_seen.rows else AsSeenTable.empty()
+    stats = {**end.stats, "plots_in_trajectories": used_plots, "nodes": n_nodes}
     return FilterOutput(trajectories=trajectories, as_seen=as_seen, stats=stats, log=list(end.log))
 
 

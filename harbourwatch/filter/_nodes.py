@@ -111,6 +111,15 @@ class NodeStore:
             )
         return t, fm, fP, pm, pP
 
+    def release(self) -> None:
+        """Free every column (the filter's end: the estimate no longer needs the nodes).
+
+        ``n`` keeps the count of nodes the store held, for the run's figures.
+        """
+        for name in self._COLUMNS:
+            old = getattr(self, name)
+            setattr(self, name, np.empty((0,) + old.shape[1:], old.dtype))
+
     def compact(self, live: IntArray) -> IntArray:
         """Drop nodes unreachable from ``live``; return the old-to-new index map (-1 = gone).
 

@@ -75,7 +75,7 @@ from harbourwatch.filter._cells import (
     update_partitions,
 )
 from harbourwatch.filter._cluttermap import ClutterMap
-from harbourwatch.filter._estimate import AsSeenRows, FilterEnd, build_output, record_as_seen
+from harbourwatch.filter._estimate import FilterEnd, build_output, record_as_seen
 from harbourwatch.filter._extscan import (
     cells_over_vessels,
     established,
@@ -98,6 +98,7 @@ from harbourwatch.filter._scanstep import ChildMaker, fast_path, group_work
 from harbourwatch.filter._undetected import UndetectedDensity
 from harbourwatch.filter.output import FilterOutput
 from harbourwatch.io.records import FilterSettings
+from harbourwatch.io.spill import SpillStore
 from harbourwatch.scene.records import BirthRegion, MeasurementScan, SensorModel
 
 __all__ = ["run_tpmbm"]
@@ -121,8 +122,10 @@ class _Filter:
         sensors: Sequence[SensorModel],
         settings: FilterSettings,
         birth_regions: Sequence[BirthRegion],
+        spill: SpillStore | None = None,
     ) -> None:
         self.sensors = {s.index: s for s in sensors}
+        self.spill = spill  # where finished trajectories' arrays go (None: kept in memory)
         self.settings = settings
         self.motion = TwoModeMotion(
             settings.accel_psd_m2_s3,
@@ -158,7 +161,7 @@ class _Filter:
         self.scan_count = 0
         self.scan_index = 0
         self.last_time = -math.inf
-        self.as_seen: list[AsSeenRows] = []
+        self.as_seen = est.AsSeenLog(spill)
 
     # -- bookkeeping -------------------------------------------------------------------
     def count_cap(self, name: str) -> None:
@@ -368,7 +371,8 @@ class _Filter:
             self.retired.extend(c for c in self.clusters if _finished(c))
             self.clusters = [c for c in self.clusters if not _finished(c)]
             # estimate those nothing can change any more, so that compaction frees their nodes
-            done, self.retired = est.estimate_retired(self.retired, self.nodes, st, self.last_time)
+            done, self.retired = est.estimate_retired(self.retired, self.nodes, st, self.last_time,
+                                                     self.spill)
             self.finished.extend(done)
         self.timers["associate"] += _time.perf_counter() - t0
 
@@ -416,9 +420,10 @@ def run_tpmbm(
     *,
     birth_regions: Sequence[BirthRegion] = (),
     progress: Callable[[int, int], None] | None = None,
+    spill: SpillStore | None = None,
 ) -> FilterOutput:
     """Run the filter over all scans; see :func:`harbourwatch.filter.run_filter`."""
-    filt = _Filter(sensors, settings, birth_regions)
+    filt = _Filter(sensors, settings, birth_regions, spill)
     order = sorted(range(len(scans)), key=lambda i: (float(scans[i].time), scans[i].sensor, i))
     total = len(order)
     step = max(1, total // 100)
@@ -453,6 +458,7 @@ def run_tpmbm(
                 "extended_pairs": filt.ext_pairs,
             },
             log=filt.log,
+            spill=spill,
         )
     )
     filt.timers["estimate"] += _time.perf_counter() - t0

@@ -11,14 +11,14 @@ import errno
 import hashlib
 import os
 import tempfile
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator
 from pathlib import Path
 from typing import IO
 
 from harbourwatch.errors import OutputError
 
-__all__ = ["atomic_open", "atomic_write_text", "atomic_write_bytes", "sha256_file", "mount_point",
-           "output_error"]
+__all__ = ["atomic_open", "atomic_write_text", "atomic_write_chunks", "atomic_write_bytes",
+           "sha256_file", "mount_point", "output_error"]
 
 
 def mount_point(path: str | os.PathLike[str]) -> Path:
@@ -76,6 +76,18 @@ def atomic_write_text(path: str | os.PathLike[str], text: str) -> None:
     """Write ``text`` (UTF-8, ``\\n`` line ends) to ``path`` atomically."""
     with atomic_open(path, "w", encoding="utf-8", newline="\n") as fh:
         fh.write(text)
+
+
+def atomic_write_chunks(path: str | os.PathLike[str], chunks: Iterable[str]) -> None:
+    """Write the concatenation of text ``chunks`` (UTF-8, ``\\n`` line ends) to ``path`` atomically.
+
+    Each chunk is written as it comes, so the whole text never exists in
+    memory; the file appears under ``path`` only once every chunk is written
+    (an error while producing a chunk leaves ``path`` as it was).
+    """
+    with atomic_open(path, "w", encoding="utf-8", newline="\n") as fh:
+        for chunk in chunks:
+            fh.write(chunk)
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> None:

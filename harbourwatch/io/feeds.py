@@ -28,7 +28,14 @@ from numpy.typing import NDArray
 
 from harbourwatch.errors import InputError
 from harbourwatch.io.records import SensorConfig
-from harbourwatch.io.table_reader import Problem, Table, parse_sensor, parse_time, read_table
+from harbourwatch.io.table_reader import (
+    Problem,
+    Table,
+    parse_sensor,
+    parse_time,
+    read_table,
+    release_unused_memory,
+)
 from harbourwatch.io.table_reader import parse_float as _parse_float
 
 __all__ = ["PlotTable", "Scan", "read_feeds", "group_scans"]
@@ -105,26 +112,29 @@ def _read_one(
     table: Table = read_table(path)
     n = table.num_rows
     problems: list[Problem | None] = []
+    # each text column is dropped once parsed: a long feed's text never exists twice over
+    text, lines, parquet, sha256 = dict(table.columns), table.lines, table.parquet, table.sha256
+    del table
 
-    time, p = parse_time(table.columns["time"])
+    time, p = parse_time(text.pop("time"))
     problems.append(p)
-    sensor, p = parse_sensor(table.columns["sensor"], [s.id for s in sensors])
+    sensor, p = parse_sensor(text.pop("sensor"), [s.id for s in sensors])
     problems.append(p)
-    lat, p = _parse_float(table.columns["lat"], field="lat", lo=-90.0, hi=90.0, what="a latitude in degrees")
+    lat, p = _parse_float(text.pop("lat"), field="lat", lo=-90.0, hi=90.0, what="a latitude in degrees")
     problems.append(p)
-    lon, p = _parse_float(table.columns["lon"], field="lon", lo=-180.0, hi=180.0,
+    lon, p = _parse_float(text.pop("lon"), field="lon", lo=-180.0, hi=180.0,
                           what="a longitude in degrees")
     problems.append(p)
 
-    if "scan" in table.columns:
-        scan_f, p = _parse_float(table.columns["scan"], field="scan", lo=0.0, hi=2.0**53, integer=True,
+    if "scan" in text:
+        scan_f, p = _parse_float(text.pop("scan"), field="scan", lo=0.0, hi=2.0**53, integer=True,
                                  what="a non-negative integer scan number")
         problems.append(p)
         scan = np.where(np.isfinite(scan_f), scan_f, -1).astype(np.int64)
     else:
         scan = np.full(n, -1, dtype=np.int64)
-    if "sigma_m" in table.columns:
-        sigma, p = _parse_float(table.columns["sigma_m"], field="sigma_m", lo=0.0, hi=MAX_SIGMA_M, lo_open=True,
+    if "sigma_m" in text:
+        sigma, p = _parse_float(text.pop("sigma_m"), field="sigma_m", lo=0.0, hi=MAX_SIGMA_M, lo_open=True,
                                 optional=True,
                                 what=f"a positive number of metres up to {MAX_SIGMA_M:g}")
         problems.append(p)
@@ -134,14 +144,14 @@ def _read_one(
     found = [q for q in problems if q is not None]
     if found:
         first = min(found, key=lambda q: q.row)  # stable: earlier checks win ties
-        line = int(table.lines[first.row])
-        where = f" (Parquet row {line - 1})" if table.parquet else ""
+        line = int(lines[first.row])
+        where = f" (Parquet row {line - 1})" if parquet else ""
         raise InputError(first.message + where, file=path, line=line, field=first.field)
 
     return {
         "time": time, "sensor": sensor, "lat": lat, "lon": lon, "scan": scan,
         "sigma_m": sigma, "source": np.full(n, index, dtype=np.int64),
-        "line": table.lines.astype(np.int64), "sha256": table.sha256,
+        "line": lines.astype(np.int64, copy=False), "sha256": sha256,
     }
 
 
@@ -189,8 +199,11 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
     files = tuple(str(p) for p in paths)
     parts = [_read_one(f, i, sensors) for i, f in enumerate(files)]
     digests = tuple(str(p.pop("sha256")) for p in parts)
-    if parts:
+    if len(parts) == 1:
+        cols = parts.pop()
+    elif parts:
         cols = {c: np.concatenate([p[c] for p in parts]) for c in parts[0]}
+        parts.clear()
     else:
         cols = {c: np.empty(0) for c in (*_COLUMNS, "source", "line")}
     if window is not None:
@@ -201,20 +214,24 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
     # order whatever the order of the rows or the split of the files
     order = np.lexsort((cols["line"], cols["source"], cols["sigma_m"], cols["scan"], cols["lon"],
                         cols["lat"], cols["sensor"], cols["time"]))
-    cols = {c: v[order] for c, v in cols.items()}
+    for c in cols:  # one column at a time: the old one is freed as the new one is made
+        cols[c] = cols[c][order]
+    del order
     keep = _first_of_duplicates(cols)
     dropped = int(keep.size - np.count_nonzero(keep))
     if dropped:
-        cols = {c: v[keep] for c, v in cols.items()}
+        for c in cols:
+            cols[c] = cols[c][keep]
+    release_unused_memory()  # the reading's scratch space (text columns) back to the system
     return PlotTable(
-        time=cols["time"].astype(np.float64),
-        sensor=cols["sensor"].astype(np.int64),
-        lat_deg=cols["lat"].astype(np.float64),
-        lon_deg=cols["lon"].astype(np.float64),
-        scan=cols["scan"].astype(np.int64),
-        sigma_m=cols["sigma_m"].astype(np.float64),
-        source=cols["source"].astype(np.int64),
-        line=cols["line"].astype(np.int64),
+        time=cols["time"].astype(np.float64, copy=False),
+        sensor=cols["sensor"].astype(np.int64, copy=False),
+        lat_deg=cols["lat"].astype(np.float64, copy=False),
+        lon_deg=cols["lon"].astype(np.float64, copy=False),
+        scan=cols["scan"].astype(np.int64, copy=False),
+        sigma_m=cols["sigma_m"].astype(np.float64, copy=False),
+        source=cols["source"].astype(np.int64, copy=False),
+        line=cols["line"].astype(np.int64, copy=False),
         files=files,
         duplicates_dropped=dropped,
         sha256=digests,
