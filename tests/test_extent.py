@@ -192,3 +192,49 @@ def test_close_plot_test_matches_connected_components(data: st.DataObject, m: in
         g = coo_matrix((np.ones(len(p)), (p[:, 0], p[:, 1])), shape=(m, m))
         ref = bool((np.bincount(connected_components(g, directed=False)[1]) >= 3).any())
     assert has_close_plots(z) == ref
+
+
+def test_tracks_csv_hull_heading_is_degrees_true_against_pyproj_geodesic():
+    """``heading_deg`` in tracks.csv is the hull axis in degrees true, not in the local grid.
+
+    Source: pyproj's ``Geod.inv`` (Karney's geodesic on WGS84) gives the true
+    azimuth from a hull's centre to a point 200 m along its main axis in the
+    local frame; 25 km east and west of the frame's origin at 57.5 N the two
+    differ from the grid axis by the meridians' convergence (about 0.3 deg).
+    """
+    import csv
+    import io
+
+    from pyproj import Geod
+
+    from harbourwatch.scene.geodesy import LocalFrame
+    from harbourwatch.trajectories import AsSeenTable, Trajectory, TrajectorySet, tracks_csv_text
+
+    frame = LocalFrame(57.5, -30.0)
+    geod = Geod(ellps="WGS84")
+    axis_grid = 0.0  # main axis along local grid north: V diagonal, larger along north
+    trajs = []
+    for k, east in enumerate((-25_000.0, 25_000.0)):
+        mean = np.array([[east, 0.0, 1000.0, 0.0], [east, 0.0, 1000.0, 0.0]])
+        cov = np.broadcast_to(np.eye(4), (2, 4, 4)).copy()
+        trajs.append(Trajectory(
+            id=f"T{k + 1}", time=np.array([0.0, 10.0]) + 1.7e9, mean=mean, cov=cov,
+            filt_mean=mean, filt_cov=cov, pred_mean=mean, pred_cov=cov, existence=1.0,
+            extent=(30.0, 3.0, 12.0, 400.0, 0.0, 20_000.0)))
+    none = AsSeenTable(time=np.zeros(0), track=np.zeros(0, "<U8"), mean=np.zeros((0, 4)),
+                       sd=np.zeros(0), existence=np.zeros(0))
+    ts = TrajectorySet(trajectories=tuple(trajs), frame=frame, as_seen=none, feed_start=1.7e9,
+                       feed_end=1.7e9 + 10.0)
+    rows = list(csv.DictReader(io.StringIO(tracks_csv_text(ts))))
+    assert len(rows) == 4
+    for row, tr in zip(rows[::2], trajs, strict=True):
+        e, n = tr.mean[0, 0], tr.mean[0, 2]
+        la0, lo0 = frame.to_wgs84(np.array([e]), np.array([n]))
+        ga = np.radians(axis_grid)
+        la1, lo1 = frame.to_wgs84(np.array([e + 200.0 * np.sin(ga)]),
+                                  np.array([n + 200.0 * np.cos(ga)]))
+        az = geod.inv(float(lo0[0]), float(la0[0]), float(lo1[0]), float(la1[0]))[0] % 180.0
+        got = float(row["heading_deg"])
+        diff = abs((got - az + 90.0) % 180.0 - 90.0)
+        assert diff <= 0.06, (got, az)  # one decimal in the file, and the 200 m chord
+        assert abs((got - axis_grid + 90.0) % 180.0 - 90.0) > 0.2  # convergence applied

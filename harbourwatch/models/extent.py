@@ -157,7 +157,9 @@ def hull_size(v: float, V: Array) -> tuple[float, float, float]:
     """``(length_m, beam_m, heading_deg)`` of the extent's mean.
 
     Length and beam are ``2 sqrt`` of the eigenvalues of ``E[X]`` (uniform
-    ellipse); heading is the main axis' direction, degrees true in ``[0, 180)``.
+    ellipse); heading is the main axis' direction in the local grid (clockwise from
+    the frame's grid north), degrees in ``[0, 180)``; ``tracks.csv`` turns it to
+    degrees true per row.
     """
     X = np.asarray(V, float) / (v - 3.0)
     w, vec = np.linalg.eigh(X)

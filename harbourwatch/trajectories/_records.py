@@ -83,7 +83,8 @@ class Trajectory:
         For a uniform ellipse of shape ``X`` the semi-axes are the square
         roots of ``X``'s eigenvalues: length ``2 sqrt(λ_max(E[X]))``, beam
         ``2 sqrt(λ_min(E[X]))``; heading is the main axis' direction (degrees
-        true, 0-180); the plot rate is the gamma mean ``α / β``.
+        in the local grid, 0-180; ``tracks.csv`` turns it to degrees true);
+        the plot rate is the gamma mean ``α / β``.
         """
         if self.extent is None:
             return None

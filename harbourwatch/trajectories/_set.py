@@ -87,6 +87,13 @@ def _sog_cog(frame: LocalFrame, mean: Array) -> tuple[Array, Array, Array, Array
     return lat, lon, sog, cog
 
 
+def _axis_true_text(axis_deg: Array) -> list[str]:
+    """A hull axis direction in degrees true as ``tracks.csv`` text: ``[0, 180)``, one decimal."""
+    a = np.asarray(axis_deg, float) % 180.0
+    a = np.where(np.round(a, 1) >= 180.0, 0.0, a)
+    return [f"{x:.1f}" for x in a]
+
+
 def _csv_text(header: tuple[str, ...], columns: list[Any], decimals: list[int | None],
               *, include_header: bool = True) -> str:
     """CSV text of numeric and string columns, numbers rounded to ``decimals``.
@@ -154,6 +161,10 @@ def tracks_csv_chunks(tset: TrajectorySet, *, rows: int = CHUNK_ROWS) -> Iterato
     for block in _row_blocks(ts, rows):
         mean = np.concatenate([t.mean[i0:i1] for t, i0, i1 in block])
         lat, lon, sog, cog = _sog_cog(tset.frame, mean)
+        # the hull axis is estimated in the local grid: turned to degrees true per row
+        conv_deg = (np.degrees(tset.frame.grid_convergence_rad(mean[:, 0], mean[:, 2],
+                                                               latlon=(lat, lon)))
+                    if sized else np.zeros(0))
         del mean
         columns: list[Any] = [
             np.concatenate([np.full(i1 - i0, t.id) for t, i0, i1 in block]),
@@ -169,8 +180,15 @@ def tracks_csv_chunks(tset: TrajectorySet, *, rows: int = CHUNK_ROWS) -> Iterato
             sizes = [t.size for t, _, _ in block]
             for k, fmt in enumerate(("%.1f", "%.1f", "%.1f", "%.2f")):
                 text: list[str] = []
+                row = 0
                 for (_t, i0, i1), sz in zip(block, sizes, strict=True):
-                    text.extend([fmt % sz[k] if sz is not None else ""] * (i1 - i0))
+                    if sz is None:
+                        text.extend([""] * (i1 - i0))
+                    elif k == 2:
+                        text.extend(_axis_true_text(sz[2] + conv_deg[row:row + i1 - i0]))
+                    else:
+                        text.extend([fmt % sz[k]] * (i1 - i0))
+                    row += i1 - i0
                 columns.append(text)
         yield _csv_text(header, columns, decimals, include_header=first)
         first = False
