@@ -245,3 +245,28 @@ def test_as_seen_log_in_blocks_gives_the_one_piece_table(monkeypatch, spilled):
     for name, want in ref.items():
         assert np.array_equal(getattr(table, name), want, equal_nan=name == "length"), name
     assert table.track.dtype.itemsize < np.dtype("<U16").itemsize  # as wide as the longest id
+
+
+def test_a_full_temporary_folder_is_an_output_error_naming_it(tmp_path, monkeypatch):
+    """ENOSPC while spilling becomes an OutputError (one line at the command line), not a traceback."""
+    import errno
+    import os
+
+    store = SpillStore(folder=str(tmp_path))
+
+    def full(*_args, **_kw):
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    monkeypatch.setattr(os, "pwrite", full)
+    with pytest.raises(OutputError) as info:
+        store.put([np.arange(4.0)])
+    assert str(tmp_path) in str(info.value) and "TMPDIR" in str(info.value)
+    assert os.strerror(errno.ENOSPC) in str(info.value)
+    store.close()
+
+
+def test_an_unwritable_temporary_folder_is_an_output_error(tmp_path):
+    missing = tmp_path / "gone"
+    with pytest.raises(OutputError) as info:
+        SpillStore(folder=str(missing))
+    assert str(missing) in str(info.value)

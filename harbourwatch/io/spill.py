@@ -26,6 +26,8 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from harbourwatch.errors import OutputError
+
 __all__ = ["SpillStore", "CACHE_BYTES"]
 
 #: Bytes of recently read groups kept in memory (a trajectory read again soon costs nothing).
@@ -44,7 +46,11 @@ class SpillStore:
     """
 
     def __init__(self, *, cache_bytes: int = CACHE_BYTES, folder: str | None = None) -> None:
-        self._file = tempfile.TemporaryFile(prefix="harbourwatch-spill-", dir=folder)
+        self._folder = folder if folder is not None else tempfile.gettempdir()
+        try:
+            self._file = tempfile.TemporaryFile(prefix="harbourwatch-spill-", dir=folder)
+        except OSError as exc:
+            raise self._error(exc) from None
         self._fd = self._file.fileno()
         self._lock = threading.Lock()
         self._index: list[tuple[int, tuple[tuple[str, tuple[int, ...]], ...], int]] = []
@@ -52,6 +58,13 @@ class SpillStore:
         self._cache_room = cache_bytes
         self._cached = 0
         self.bytes_written = 0
+
+    def _error(self, exc: OSError) -> OutputError:
+        """The user-facing error of a temporary file that cannot be written."""
+        why = exc.strerror or str(exc)
+        return OutputError(f"{why} in the temporary folder {self._folder} (set TMPDIR to a folder "
+                           "with room; a run needs about 45 MB there per busy feed hour)",
+                           path=os.path.join(self._folder, "harbourwatch-spill-* (unlinked)"))
 
     def put(self, arrays: Sequence[NDArray[Any]]) -> int:
         """Write a group of arrays; return its key for :meth:`get`."""
@@ -64,9 +77,12 @@ class SpillStore:
         data = b"".join(a.tobytes() for a in parts)
         offset = self.bytes_written
         view = memoryview(data)
-        while view:  # pwrite may write less than asked
-            done = os.pwrite(self._fd, view, offset + len(data) - len(view))
-            view = view[done:]
+        try:
+            while view:  # pwrite may write less than asked
+                done = os.pwrite(self._fd, view, offset + len(data) - len(view))
+                view = view[done:]
+        except OSError as exc:  # a full or read-only temporary folder: the user can fix that
+            raise self._error(exc) from None
         self.bytes_written += len(data)
         self._index.append((offset, layout, len(data)))
         return len(self._index) - 1
