@@ -229,9 +229,10 @@ def _review_into(req: _Request, inp: RunInputs, out_dir: Path, bars: RunProgress
     # the trajectory tables are written on a second thread while the rules and the
     # reports are worked out: much of their time is spent in pyproj, numpy and
     # pyarrow, which release the interpreter lock (unless asked not to: a campaign worker)
-    pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="harbourwatch-tables")
+    pool = (ThreadPoolExecutor(max_workers=1, thread_name_prefix="harbourwatch-tables")
+            if req.tables_thread else None)
     tables = (pool.submit(_write_trajectory_tables, out_dir, tset, bars.stage("tables") or _quiet)
-              if req.tables_thread else None)
+              if pool is not None else None)
     try:
         alerts = _apply_rules(req, inp, scene, tset, out_dir, bars, timings)
         provenance = run_record(
@@ -242,7 +243,8 @@ def _review_into(req: _Request, inp: RunInputs, out_dir: Path, bars: RunProgress
         provenance["parameters"]["display_tz"] = req.display_tz
         _write_pages(req, inp, tset, alerts, provenance, out_dir, bars, timings)
     finally:
-        pool.shutdown(wait=True)
+        if pool is not None:
+            pool.shutdown(wait=True)
     timings["write_tables_s"] = (tables.result() if tables is not None else
                                  _write_trajectory_tables(out_dir, tset, bars.stage("tables") or _quiet))
     bars.close()
