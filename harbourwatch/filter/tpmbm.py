@@ -100,6 +100,7 @@ from harbourwatch.filter.output import FilterOutput
 from harbourwatch.io.records import FilterSettings
 from harbourwatch.io.spill import SpillStore
 from harbourwatch.scene.records import BirthRegion, MeasurementScan, SensorModel
+from harbourwatch.scene.scans import ScanStream
 
 __all__ = ["run_tpmbm"]
 
@@ -424,7 +425,10 @@ def run_tpmbm(
 ) -> FilterOutput:
     """Run the filter over all scans; see :func:`harbourwatch.filter.run_filter`."""
     filt = _Filter(sensors, settings, birth_regions, spill)
-    order = sorted(range(len(scans)), key=lambda i: (float(scans[i].time), scans[i].sensor, i))
+    # a stream of scans gives its keys without making the scans (they are made as read)
+    keys = (scans.order_keys() if isinstance(scans, ScanStream)
+            else [(float(sc.time), sc.sensor) for sc in scans])
+    order = sorted(range(len(scans)), key=lambda i: (keys[i][0], keys[i][1], i))
     total = len(order)
     step = max(1, total // 100)
     # the filter makes millions of small objects but no reference cycles: the cyclic

@@ -15,16 +15,15 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from numpy.typing import NDArray
 
 from harbourwatch.io.feeds import PlotTable, Scan
 from harbourwatch.io.inputs import RunInputs
 from harbourwatch.io.records import FilterSettings, SensorConfig
-from harbourwatch.models.cv import converted_covariance
 from harbourwatch.scene.checks import input_warnings
 from harbourwatch.scene.extent import Covers, check_frame_extent
 from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.scene.records import BirthRegion, MeasurementScan, SensorModel
+from harbourwatch.scene.scans import ScanStream
 from harbourwatch.scene.zones import LocalZone, local_zones
 
 __all__ = ["LocalScene", "into_local_frame", "sensor_models", "measurement_scans"]
@@ -45,9 +44,8 @@ class LocalScene:
     sensors
         One :class:`SensorModel` per radar, in the order of the sensor file.
     scans
-        The plots of every scan in the frame, with their covariances.
-    plot_xy
-        ``(N, 2)`` east/north of every plot of the run's plot table, metres.
+        The plots of every scan in the frame, with their covariances (made a
+        block of scans at a time as they are read: :class:`ScanStream`).
     zones
         Every zone in the frame (densified once), by id.
     birth_regions
@@ -59,8 +57,7 @@ class LocalScene:
 
     frame: LocalFrame
     sensors: tuple[SensorModel, ...]
-    scans: tuple[MeasurementScan, ...]
-    plot_xy: NDArray[np.float64]
+    scans: Sequence[MeasurementScan]
     zones: Mapping[str, LocalZone]
     birth_regions: tuple[BirthRegion, ...]
     warnings: tuple[str, ...] = ()
@@ -88,36 +85,14 @@ def measurement_scans(
     models: Sequence[SensorModel],
     sensors: Sequence[SensorConfig],
     frame: LocalFrame,
-) -> tuple[list[MeasurementScan], NDArray[np.float64]]:
+) -> ScanStream:
     """Plots into the local frame with their covariances, one record per scan.
 
-    Returns the scans and the ``(N, 2)`` local positions of all plots.
+    The records are made a block of scans at a time as they are read
+    (:class:`~harbourwatch.scene.scans.ScanStream`), so a long feed's scans
+    never all exist at once in the frame.
     """
-    e, n = frame.to_local(plots.lat_deg, plots.lon_deg)
-    z = np.column_stack([e, n])
-    R = np.empty((len(plots), 2, 2))
-    for s, cfg in zip(models, sensors, strict=True):
-        idx = np.flatnonzero(plots.sensor == s.index)
-        if idx.size:
-            R[idx] = converted_covariance(
-                e[idx] - s.site[0],
-                n[idx] - s.site[1],
-                cfg.range_sigma_m,
-                np.radians(cfg.bearing_sigma_deg),
-                plots.sigma_m[idx],
-            )
-    out = [
-        MeasurementScan(
-            sensor=sc.sensor,
-            time=sc.time,
-            plot_ids=sc.plots,
-            plot_time=plots.time[sc.plots],
-            z=z[sc.plots],
-            R=R[sc.plots],
-        )
-        for sc in scans
-    ]
-    return out, z
+    return ScanStream(plots, scans, models, sensors, frame)
 
 
 def _birth_regions(zones: Mapping[str, LocalZone], per_hour: float) -> tuple[BirthRegion, ...]:
@@ -154,16 +129,16 @@ def into_local_frame(inputs: RunInputs, settings: FilterSettings | None = None) 
     frame = LocalFrame.around([s.lat_deg for s in inputs.sensors],
                               [s.lon_deg for s in inputs.sensors])
     models = sensor_models(inputs.sensors, frame)
-    scans, xy = measurement_scans(inputs.plots, inputs.scans, models, inputs.sensors, frame)
-    check_frame_extent(inputs.plots, inputs.sensors, frame, xy[:, 0], xy[:, 1],
+    e, n = frame.to_local(np.asarray(inputs.plots.lat_deg), np.asarray(inputs.plots.lon_deg))
+    check_frame_extent(inputs.plots, inputs.sensors, frame, e, n,
                        sensors_path=inputs.sensors_path or None)
-    warnings = input_warnings(inputs.plots, inputs.sensors, models, xy)
+    warnings = input_warnings(inputs.plots, inputs.sensors, models, np.column_stack([e, n]))
+    del e, n  # the checks' copy of every plot in the frame; the filter's comes block by block
     zones = local_zones(inputs.zones, frame, Covers.of(inputs.sensors, frame), warnings)
     return LocalScene(
         frame=frame,
         sensors=tuple(models),
-        scans=tuple(scans),
-        plot_xy=xy,
+        scans=measurement_scans(inputs.plots, inputs.scans, models, inputs.sensors, frame),
         zones=zones,
         birth_regions=_birth_regions(zones, settings.entrance_arrivals_per_hour),
         warnings=tuple(warnings),
