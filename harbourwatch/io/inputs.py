@@ -14,12 +14,14 @@ from os import PathLike
 
 from harbourwatch.io.feeds import PlotTable, Scan, group_scans, read_feeds
 from harbourwatch.io.gaps import check_gaps
+from harbourwatch.io.plotstore import store_plot_columns
 from harbourwatch.io.records import (
     RuleConfig,
     RuleSchema,
     SensorConfig,
     ZoneConfig,
 )
+from harbourwatch.io.table_reader import release_unused_memory
 from harbourwatch.io.toml_files import load_rules, load_sensors
 from harbourwatch.io.zone_file import load_zones
 
@@ -35,7 +37,9 @@ class RunInputs:
     sensors, zones, rules
         The parsed configuration records, in file order.
     plots
-        All plots, merged and sorted by time.
+        All plots, merged and sorted by time; the positions, ``sigma_m``, scan
+        numbers and lines are :class:`~harbourwatch.io.plotstore.StoredColumn`
+        (on disk, read by index), time and sensor are in memory.
     scans
         The plots grouped into scans (see :func:`harbourwatch.io.feeds.group_scans`).
     feed_paths, sensors_path, zones_path, rules_path
@@ -102,6 +106,9 @@ def load_inputs(
     digests.update(zip(plots.files, plots.sha256, strict=True))
     warnings = check_gaps(plots, allow_gaps=allow_gaps)
     scans = tuple(group_scans(plots, sensor_cfg))
+    # the bulky columns go to a temporary file: the rest of the run reads them a block at a time
+    plots = store_plot_columns(plots)
+    release_unused_memory()
     return RunInputs(
         sensors=sensor_cfg, zones=zone_cfg, rules=rule_cfg, plots=plots, scans=scans,
         feed_paths=tuple(str(f) for f in feeds), sensors_path=str(sensors),
