@@ -33,8 +33,9 @@ from harbourwatch.io.table_reader import (
     Table,
     parse_sensor,
     parse_time,
-    read_table,
+    read_tables,
     release_unused_memory,
+    time_form,
 )
 from harbourwatch.io.table_reader import parse_float as _parse_float
 
@@ -108,15 +109,43 @@ _COLUMNS = ("time", "sensor", "lat", "lon", "scan", "sigma_m")
 def _read_one(
     path: str, index: int, sensors: Sequence[SensorConfig]
 ) -> dict[str, Any]:
-    """Read and validate one feed file into plain numpy columns (file order)."""
-    table: Table = read_table(path)
+    """Read and validate one feed file into plain numpy columns (file order).
+
+    The file streams through in blocks of lines (:func:`read_tables`): each
+    block's text is parsed, checked and dropped before the next is read, so
+    a long feed's text never exists whole. The first bad row of the file is
+    the first bad row of the first block that has one.
+    """
+    tables = read_tables(path)
+    parts: dict[str, list[NDArray[Any]]] = {c: [] for c in (*_COLUMNS, "source", "line")}
+    form: bool | None = None
+    for table in tables:
+        if form is None:  # the file's first data row sets the form of its times
+            form = time_form(table.columns["time"])
+        cols = _parse_block(path, table, sensors, form)
+        del table
+        cols["source"] = np.full(cols["time"].size, index, dtype=np.int64)
+        for c, v in cols.items():
+            parts[c].append(v)
+    out: dict[str, Any] = {}
+    for c in list(parts):  # one column at a time: its blocks are freed as it is joined
+        chunks = parts.pop(c)
+        out[c] = chunks[0] if len(chunks) == 1 else np.concatenate(chunks)
+        del chunks
+    out["sha256"] = tables.sha256
+    return out
+
+
+def _parse_block(path: str, table: Table, sensors: Sequence[SensorConfig],
+                 form: bool | None) -> dict[str, NDArray[Any]]:
+    """One block's contract columns checked and parsed; the first bad row raises."""
     n = table.num_rows
     problems: list[Problem | None] = []
-    # each text column is dropped once parsed: a long feed's text never exists twice over
-    text, lines, parquet, sha256 = dict(table.columns), table.lines, table.parquet, table.sha256
+    # each text column is dropped once parsed: a block's text never exists twice over
+    text, lines, parquet = dict(table.columns), table.lines, table.parquet
     del table
 
-    time, p = parse_time(text.pop("time"))
+    time, p = parse_time(text.pop("time"), epoch_form=form)
     problems.append(p)
     sensor, p = parse_sensor(text.pop("sensor"), [s.id for s in sensors])
     problems.append(p)
@@ -150,8 +179,7 @@ def _read_one(
 
     return {
         "time": time, "sensor": sensor, "lat": lat, "lon": lon, "scan": scan,
-        "sigma_m": sigma, "source": np.full(n, index, dtype=np.int64),
-        "line": lines.astype(np.int64, copy=False), "sha256": sha256,
+        "sigma_m": sigma, "line": lines.astype(np.int64, copy=False),
     }
 
 

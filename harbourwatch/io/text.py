@@ -22,6 +22,7 @@ from typing import Any
 from harbourwatch.errors import InputError
 
 __all__ = ["BIDI_CONTROLS", "control_character", "read_text", "read_input", "InputBytes",
+           "InputStream", "stream_input",
            "BLOCK_BYTES", "FEED_MAX_BYTES", "CONFIG_MAX_BYTES", "ZONES_MAX_BYTES"]
 
 #: Block size of every read; the text checks look at the first block first.
@@ -143,7 +144,12 @@ def _gunzip(blocks: Iterator[bytes], path: str | PathLike[str], limit: int) -> I
 
 
 class _TextCheck:
-    """Streaming checks that the content is UTF-8 text with line breaks and no NUL."""
+    """Streaming checks that the content is UTF-8 text with line breaks and no NUL.
+
+    Only what the messages need is kept from the blocks already seen (the
+    counts of line breaks, the header line and the start of the current
+    line), so a long feed can be checked as it streams past.
+    """
 
     def __init__(self, path: str | PathLike[str], *, lines: bool) -> None:
         self.path = path
@@ -151,29 +157,41 @@ class _TextCheck:
         self.lines = lines
         self.newline_seen = not lines  # only files of lines need a line break early
         self.decoder = codecs.getincrementaldecoder("utf-8")()
-        self.parts: list[bytes] = []
+        self.lf = 0  # line breaks in the blocks before the current one
+        self.cr = 0
+        self.header = b""  # the first line, once complete (or all of it so far)
+        self.header_done = False
+        self.carry = b""  # the blocks' bytes after their last line break (capped)
+        self.block = b""
+        self.start = 0
 
     def _line_at(self, offset: int) -> int:
-        head = b"".join(self.parts)[:offset]
-        breaks = head.count(b"\n")
-        return (breaks if breaks else head.count(b"\r")) + 1
+        head = self.block[: offset - self.start]
+        lf = self.lf + head.count(b"\n")
+        return (lf if lf else self.cr + head.count(b"\r")) + 1
 
     def _field_at(self, offset: int) -> str | None:
         """The header's name for the column at ``offset`` (CSV files of lines only)."""
         if not self.lines:
             return None
-        head = b"".join(self.parts)
-        sep = b"\n" if b"\n" in head else b"\r"
-        start = head.rfind(sep, 0, offset) + 1
-        if start == 0:
+        sep = b"\n" if self.lf or b"\n" in self.block else b"\r"
+        rel = offset - self.start
+        before = self.lf if sep == b"\n" else self.cr
+        cut = self.block.rfind(sep, 0, rel)
+        if cut < 0 and before == 0:
             return None  # in the header itself
-        header = head[: head.find(sep)].rstrip(b"\r").split(b",")
-        col = head[start:offset].count(b",")
-        return header[col].decode("utf-8", "replace").strip() if col < len(header) else None
+        line = self.block[cut + 1 : rel] if cut >= 0 else self.carry + self.block[:rel]
+        header = self.header
+        if not self.header_done:
+            header = (header + self.block).split(sep, 1)[0]
+        names = header.rstrip(b"\r").split(b",")
+        col = line.count(b",")
+        return names[col].decode("utf-8", "replace").strip() if col < len(names) else None
 
     def feed(self, block: bytes) -> None:
-        start = self.seen
-        self.parts.append(block)
+        self.start = self.seen
+        self.block = block
+        start = self.start
         self.seen += len(block)
         nul = block.find(b"\0")
         if nul >= 0:
@@ -185,21 +203,104 @@ class _TextCheck:
             if not self.newline_seen and self.seen >= _MIB:
                 raise InputError("no line break in the first MiB: this is not a text file "
                                  "of lines (binary data?)", file=self.path, line=1)
-        if block.isascii() and not self.decoder.getstate()[0]:
-            return
-        try:
-            self.decoder.decode(block)
-        except UnicodeDecodeError as exc:
-            at = start + max(exc.start, 0)
-            raise InputError("not valid UTF-8 text", file=self.path, line=self._line_at(at),
-                             field=self._field_at(at)) from None
+        if not (block.isascii() and not self.decoder.getstate()[0]):
+            try:
+                self.decoder.decode(block)
+            except UnicodeDecodeError as exc:
+                at = start + max(exc.start, 0)
+                raise InputError("not valid UTF-8 text", file=self.path, line=self._line_at(at),
+                                 field=self._field_at(at)) from None
+        self._remember(block)
+
+    def _remember(self, block: bytes) -> None:
+        """Keep the counts, the header and the current line's start for later messages."""
+        lf, cr = block.count(b"\n"), block.count(b"\r")
+        if not self.header_done:
+            sep = b"\n" if (self.lf + lf) else b"\r"
+            self.header = (self.header + block).split(sep, 1)[0] if (lf or cr) else (
+                self.header + block)[:_MIB]
+            self.header_done = bool(lf or cr)
+        self.lf += lf
+        self.cr += cr
+        sep = b"\n" if self.lf else b"\r"
+        cut = block.rfind(sep)
+        self.carry = block[cut + 1 :] if cut >= 0 else (self.carry + block)[-_MIB:]
 
     def finish(self) -> None:
         try:
             self.decoder.decode(b"", final=True)
         except UnicodeDecodeError:
+            self.block, self.start = b"", self.seen
             raise InputError("not valid UTF-8 text (the file ends inside a character)",
                              file=self.path, line=self._line_at(self.seen)) from None
+
+
+class InputStream:
+    """One input file's content as checked blocks, read once (see :func:`stream_input`).
+
+    Iterate :attr:`blocks` once; :attr:`sha256` is known when they are all read.
+    """
+
+    def __init__(self, path: str | PathLike[str], *, limit: int, formats: str) -> None:
+        self._digest = hashlib.sha256()
+        self._raw = _blocks(path, self._digest)
+        self._first = next(self._raw, b"")
+        self.kind = "text"
+        if formats == "feed" and self._first[:4] == _PARQUET_MAGIC:
+            self.kind = "parquet"
+        elif formats == "feed" and self._first[:2] == _GZIP_MAGIC:
+            self.kind = "gzip"
+        self._path, self._limit, self._formats = path, limit, formats
+        self.blocks: Iterator[bytes] = self._checked()
+
+    def _stored(self) -> Iterator[bytes]:
+        if self._first:
+            yield self._first
+        self._first = b""
+        yield from self._raw
+
+    def _checked(self) -> Iterator[bytes]:
+        path, limit, formats = self._path, self._limit, self._formats
+        try:
+            if self.kind == "parquet":
+                total = 0
+                for block in self._stored():
+                    total += len(block)
+                    if total > limit:
+                        raise InputError(f"larger than {limit >> 20} MiB", file=path)
+                    yield block
+                return
+            content = _gunzip(self._stored(), path, limit) if self.kind == "gzip" else self._stored()
+            check = _TextCheck(path, lines=formats == "feed")
+            for block in content:
+                if check.seen + len(block) > limit:
+                    raise InputError(f"larger than {limit >> 20} MiB; split it into several files"
+                                     if formats == "feed" else f"larger than {limit >> 20} MiB: "
+                                     "not a file of this kind", file=path)
+                check.feed(block)
+                yield block
+            check.finish()
+        finally:
+            self.close()
+
+    @property
+    def sha256(self) -> str:
+        """Hex SHA-256 of the stored bytes (once every block has been read)."""
+        return self._digest.hexdigest()
+
+    def close(self) -> None:
+        """Close the file now (also when refused early: a FIFO's writer sees it)."""
+        self._raw.close()
+
+
+def stream_input(path: str | PathLike[str], *, limit: int, formats: str = "text") -> InputStream:
+    """Open one input file for a single pass over its checked content, block by block.
+
+    The same checks as :func:`read_input`, made on each block as it is read;
+    nothing but the current block is kept, so a feed of gigabytes streams
+    through in constant memory.
+    """
+    return InputStream(path, limit=limit, formats=formats)
 
 
 def read_input(path: str | PathLike[str], *, limit: int, formats: str = "text") -> InputBytes:
@@ -223,47 +324,12 @@ def read_input(path: str | PathLike[str], *, limit: int, formats: str = "text") 
         gzip data. The text checks run on each block
         as it arrives, so a binary file is refused after its first block.
     """
-    digest = hashlib.sha256()
-    blocks = _blocks(path, digest)
+    stream = stream_input(path, limit=limit, formats=formats)
     try:
-        got = _read_blocks(path, blocks, limit, formats)
+        data = b"".join(stream.blocks)
     finally:
-        blocks.close()  # closes the file now, also when refused early (a FIFO's writer sees it)
-    return InputBytes(got[0], digest.hexdigest(), got[1])
-
-
-def _read_blocks(path: str | PathLike[str], blocks: Iterator[bytes], limit: int,
-                 formats: str) -> tuple[bytes, str]:
-    first = next(blocks, b"")
-    kind = "text"
-    if formats == "feed" and first[:4] == _PARQUET_MAGIC:
-        kind = "parquet"
-    elif formats == "feed" and first[:2] == _GZIP_MAGIC:
-        kind = "gzip"
-
-    def stored() -> Iterator[bytes]:
-        if first:
-            yield first
-        yield from blocks
-
-    if kind == "parquet":
-        parts, total = [], 0
-        for block in stored():
-            total += len(block)
-            if total > limit:
-                raise InputError(f"larger than {limit >> 20} MiB", file=path)
-            parts.append(block)
-        return b"".join(parts), kind
-    content = _gunzip(stored(), path, limit) if kind == "gzip" else stored()
-    check = _TextCheck(path, lines=formats == "feed")
-    for block in content:
-        if check.seen + len(block) > limit:
-            raise InputError(f"larger than {limit >> 20} MiB; split it into several files"
-                             if formats == "feed" else f"larger than {limit >> 20} MiB: "
-                             "not a file of this kind", file=path)
-        check.feed(block)
-    check.finish()
-    return b"".join(check.parts), kind
+        stream.close()
+    return InputBytes(data, stream.sha256, stream.kind)
 
 
 def read_text(
