@@ -154,7 +154,7 @@ def test_stored_column_indexes_like_the_array(n, seed):
         lat_deg=rng.uniform(-90, 90, n), lon_deg=rng.uniform(-180, 180, n),
         scan=rng.integers(-1, 50, n), sigma_m=np.where(rng.random(n) < 0.3, np.nan, 5.0),
         source=np.zeros(n, np.int64), line=np.arange(2, n + 2), files=("f.csv",))
-    stored = store_plot_columns(table)
+    stored, _ = store_plot_columns(table)
     for name in STORED:
         col, ref = getattr(stored, name), getattr(table, name)
         assert isinstance(col, StoredColumn) and len(col) == n and col.dtype == ref.dtype
@@ -200,7 +200,7 @@ def test_stored_table_groups_and_converts_like_the_array_table(tmp_path):
         scan=np.full(n, -1), sigma_m=np.where(rng.random(n) < 0.5, np.nan, 12.0),
         source=np.zeros(n, np.int64), line=np.arange(2, n + 2), files=("f.csv",))
     scans = group_scans(table, SENSORS)
-    stored = store_plot_columns(table)
+    stored, _ = store_plot_columns(table)
     frame = LocalFrame.around([s.lat_deg for s in SENSORS], [s.lon_deg for s in SENSORS])
     models = sensor_models(SENSORS, frame)
     # the reference: every plot converted at once, then cut per scan
@@ -216,3 +216,29 @@ def test_stored_table_groups_and_converts_like_the_array_table(tmp_path):
             np.testing.assert_array_equal(ms.z, z_all[sc.plots])  # bit for bit
             np.testing.assert_array_equal(ms.R, R_all[sc.plots])
             assert ms.sensor == sc.sensor and ms.time == sc.time
+
+
+@settings(max_examples=30, deadline=None)
+@given(n=st.integers(0, 2500), seed=st.integers(0, 2**32 - 1), numbered=st.booleans())
+def test_scan_table_gives_the_scans_of_group_scans(n, seed, numbered):
+    from harbourwatch.io.feeds import scan_arrays
+
+    rng = np.random.default_rng(seed)
+    t = np.sort(rng.uniform(T0, T0 + 300, n))
+    table = PlotTable(
+        time=t, sensor=rng.integers(0, 2, n), lat_deg=np.full(n, 54.3), lon_deg=np.full(n, 10.15),
+        scan=(np.floor((t - T0) / 2.7).astype(np.int64) if numbered else np.full(n, -1)),
+        sigma_m=np.full(n, np.nan), source=np.zeros(n, np.int64), line=np.arange(2, n + 2),
+        files=("f.csv",))
+    listed = group_scans(table, SENSORS)
+    _, stored = store_plot_columns(table, scans=scan_arrays(table, SENSORS))
+    assert stored is not None and len(stored) == len(listed)
+    walked = list(stored)
+    picks = [0, len(listed) // 2, -1] if listed else []
+    pairs = [*zip(walked, listed, strict=True), *((stored[k], listed[k]) for k in picks),
+             *zip(stored[1:6], listed[1:6], strict=True)]
+    for a, b in pairs:
+        assert (a.sensor, a.number, a.time) == (b.sensor, b.number, b.time)
+        np.testing.assert_array_equal(a.plots, b.plots)
+    # every plot in exactly one scan
+    assert sorted(np.concatenate([sc.plots for sc in walked]).tolist() if walked else []) == list(range(n))

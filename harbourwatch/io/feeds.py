@@ -39,7 +39,7 @@ from harbourwatch.io.table_reader import (
 )
 from harbourwatch.io.table_reader import parse_float as _parse_float
 
-__all__ = ["PlotTable", "Scan", "read_feeds", "group_scans"]
+__all__ = ["PlotTable", "Scan", "ScanArrays", "read_feeds", "group_scans", "scan_arrays"]
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -284,6 +284,21 @@ def _first_of_duplicates(cols: dict[str, NDArray]) -> NDArray[np.bool_]:
     return keep
 
 
+@dataclass(frozen=True, kw_only=True, eq=False)
+class ScanArrays:
+    """Every scan of a run as arrays: scan ``k`` holds the plot rows
+    ``rows[offsets[k]:offsets[k + 1]]`` (sorted by plot time)."""
+
+    sensor: NDArray[np.int64]
+    number: NDArray[np.int64]
+    time: NDArray[np.float64]
+    offsets: NDArray[np.int64]
+    rows: NDArray[np.int64]
+
+    def __len__(self) -> int:
+        return int(self.time.size)
+
+
 def group_scans(plots: PlotTable, sensors: Sequence[SensorConfig]) -> list[Scan]:
     """Group plots into scans per sensor, ordered by reference time.
 
@@ -311,9 +326,21 @@ def group_scans(plots: PlotTable, sensors: Sequence[SensorConfig]) -> list[Scan]
         When one sensor has plots both with and without scan numbers (feed
         files that disagree).
     """
+    a = scan_arrays(plots, sensors)
+    return [
+        Scan(sensor=int(a.sensor[k]), number=int(a.number[k]), time=float(a.time[k]),
+             plots=a.rows[a.offsets[k]:a.offsets[k + 1]])
+        for k in range(len(a))
+    ]
+
+
+def scan_arrays(plots: PlotTable, sensors: Sequence[SensorConfig]) -> ScanArrays:
+    """The scans of :func:`group_scans` as compact arrays (same scans, same order, same rows)."""
     n = len(plots)
     if n == 0:
-        return []
+        empty = np.empty(0, np.int64)
+        return ScanArrays(sensor=empty, number=empty, time=np.empty(0), offsets=np.zeros(1, np.int64),
+                          rows=empty)
     sensor = plots.sensor
     has_scan = plots.scan >= 0
     n_sensors = max(len(sensors), int(sensor.max()) + 1)
@@ -344,10 +371,12 @@ def group_scans(plots: PlotTable, sensors: Sequence[SensorConfig]) -> list[Scan]
     ends = np.append(starts[1:], n) - 1
     ref_time = plots.time[order[ends]]
     g_sensor, g_number = s_sorted[starts], n_sorted[starts]
-    groups = np.split(order.astype(np.int64), starts[1:])
     by = np.lexsort((g_number, g_sensor, ref_time))
-    return [
-        Scan(sensor=int(g_sensor[g]), number=int(g_number[g]), time=float(ref_time[g]),
-             plots=groups[g])
-        for g in by
-    ]
+    # the plot rows of every scan, scan after scan in the order of ``by``
+    sizes = (ends - starts + 1)[by]
+    offsets = np.concatenate(([0], np.cumsum(sizes)))
+    pos = np.repeat(starts[by] - offsets[:-1], sizes) + np.arange(n)
+    rows = order[pos].astype(np.int64, copy=False)
+    return ScanArrays(sensor=g_sensor[by].astype(np.int64), number=g_number[by].astype(np.int64),
+                      time=ref_time[by].astype(np.float64), offsets=offsets.astype(np.int64),
+                      rows=rows)

@@ -12,7 +12,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from os import PathLike
 
-from harbourwatch.io.feeds import PlotTable, Scan, group_scans, read_feeds
+from harbourwatch.io.feeds import PlotTable, Scan, read_feeds, scan_arrays
 from harbourwatch.io.gaps import check_gaps
 from harbourwatch.io.plotstore import store_plot_columns
 from harbourwatch.io.records import (
@@ -41,7 +41,8 @@ class RunInputs:
         numbers and lines are :class:`~harbourwatch.io.plotstore.StoredColumn`
         (on disk, read by index), time and sensor are in memory.
     scans
-        The plots grouped into scans (see :func:`harbourwatch.io.feeds.group_scans`).
+        The plots grouped into scans (see :func:`harbourwatch.io.feeds.group_scans`), as a
+        :class:`~harbourwatch.io.plotstore.ScanTable` (records made when read).
     feed_paths, sensors_path, zones_path, rules_path
         The input paths as given.
     checksums
@@ -55,7 +56,7 @@ class RunInputs:
     zones: tuple[ZoneConfig, ...]
     rules: tuple[RuleConfig, ...]
     plots: PlotTable
-    scans: tuple[Scan, ...]
+    scans: Sequence[Scan]
     feed_paths: tuple[str, ...]
     sensors_path: str
     zones_path: str
@@ -105,9 +106,10 @@ def load_inputs(
     plots = read_feeds(feeds, sensor_cfg, window=window)
     digests.update(zip(plots.files, plots.sha256, strict=True))
     warnings = check_gaps(plots, allow_gaps=allow_gaps)
-    scans = tuple(group_scans(plots, sensor_cfg))
-    # the bulky columns go to a temporary file: the rest of the run reads them a block at a time
-    plots = store_plot_columns(plots)
+    # the bulky columns and the scans' plot rows go to a temporary file: the rest of the run
+    # reads them a block at a time
+    plots, scans = store_plot_columns(plots, scans=scan_arrays(plots, sensor_cfg))
+    assert scans is not None  # given the scans, their table comes back
     release_unused_memory()
     return RunInputs(
         sensors=sensor_cfg, zones=zone_cfg, rules=rule_cfg, plots=plots, scans=scans,
