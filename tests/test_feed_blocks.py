@@ -10,7 +10,6 @@ and compares, the reference being the whole-file result.
 
 from __future__ import annotations
 
-import calendar
 import gzip
 from pathlib import Path
 
@@ -20,23 +19,13 @@ from conftest import BAD_FEEDS, CALDER_FEED
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from strategies import plot_rows
+from test_feeds import SENSORS, T0  # the two Calder radars and 2026-05-04T06:00:00Z
 
 from harbourwatch.errors import InputError, OutputError
 from harbourwatch.io import table_reader, text
 from harbourwatch.io.feeds import PlotTable, group_scans, read_feeds
 from harbourwatch.io.plotstore import STORED, StoredColumn, store_plot_columns
-from harbourwatch.io.records import SensorConfig
 
-
-def _sensor(sid: str, period: float = 2.5) -> SensorConfig:
-    return SensorConfig(id=sid, lat_deg=54.3, lon_deg=10.15, scan_period_s=period,
-                        range_sigma_m=15.0, bearing_sigma_deg=0.4, detection_probability=0.9,
-                        false_plots_per_scan=6.0, max_range_m=22000.0)
-
-
-SENSORS = (_sensor("calder-head", 2.5), _sensor("sound-light", 3.0))
-# 2026-05-04T06:00:00Z in epoch seconds, from Python's calendar.timegm (outside the project).
-T0 = calendar.timegm((2026, 5, 4, 6, 0, 0))
 COLUMNS = ("time", "sensor", "lat_deg", "lon_deg", "scan", "sigma_m", "source", "line")
 
 
