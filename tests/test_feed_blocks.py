@@ -24,7 +24,8 @@ from test_feeds import SENSORS, T0  # the two Calder radars and 2026-05-04T06:00
 from harbourwatch.errors import InputError, OutputError
 from harbourwatch.io import table_reader, text
 from harbourwatch.io.feeds import PlotTable, group_scans, read_feeds
-from harbourwatch.io.plotstore import STORED, StoredColumn, store_plot_columns
+from harbourwatch.io.columns import StoredColumn
+from harbourwatch.io.plotstore import STORED, store_plot_columns
 
 COLUMNS = ("time", "sensor", "lat_deg", "lon_deg", "scan", "sigma_m", "source", "line")
 

@@ -27,6 +27,7 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from harbourwatch.errors import InputError
+from harbourwatch.io.columns import ColumnWriter, StoredColumn
 from harbourwatch.io.records import SensorConfig
 from harbourwatch.io.table_reader import (
     Problem,
@@ -106,18 +107,25 @@ MAX_SIGMA_M = 100_000.0
 _COLUMNS = ("time", "sensor", "lat", "lon", "scan", "sigma_m")
 
 
-def _read_one(
-    path: str, index: int, sensors: Sequence[SensorConfig]
-) -> dict[str, Any]:
-    """Read and validate one feed file into plain numpy columns (file order).
+#: Columns of the feed besides time, as read (the time column stays in memory for the sort).
+_ON_DISK = ("sensor", "lat", "lon", "scan", "sigma_m", "source", "line")
+_DTYPES = {"time": np.float64, "sensor": np.int64, "lat": np.float64, "lon": np.float64,
+           "scan": np.int64, "sigma_m": np.float64, "source": np.int64, "line": np.int64}
+
+
+def _read_one(path: str, index: int, sensors: Sequence[SensorConfig],
+              sinks: dict[str, ColumnWriter], times: list[NDArray[np.float64]],
+              window: tuple[float, float] | None) -> str:
+    """Read and validate one feed file, its rows appended to ``sinks``/``times``; its SHA-256.
 
     The file streams through in blocks of lines (:func:`read_tables`): each
-    block's text is parsed, checked and dropped before the next is read, so
-    a long feed's text never exists whole. The first bad row of the file is
-    the first bad row of the first block that has one.
+    block's text is parsed, checked, appended to the columns on disk and
+    dropped before the next is read, so a long feed's text never exists
+    whole and its columns never are in memory at once. The first bad row of
+    the file is the first bad row of the first block that has one. Rows
+    outside ``window`` are dropped after they are checked.
     """
     tables = read_tables(path)
-    parts: dict[str, list[NDArray[Any]]] = {c: [] for c in (*_COLUMNS, "source", "line")}
     form: bool | None = None
     for table in tables:
         if form is None:  # the file's first data row sets the form of its times
@@ -125,15 +133,13 @@ def _read_one(
         cols = _parse_block(path, table, sensors, form)
         del table
         cols["source"] = np.full(cols["time"].size, index, dtype=np.int64)
+        if window is not None:
+            inside = (cols["time"] >= window[0]) & (cols["time"] < window[1])
+            cols = {c: v[inside] for c, v in cols.items()}
+        times.append(cols.pop("time"))
         for c, v in cols.items():
-            parts[c].append(v)
-    out: dict[str, Any] = {}
-    for c in list(parts):  # one column at a time: its blocks are freed as it is joined
-        chunks = parts.pop(c)
-        out[c] = chunks[0] if len(chunks) == 1 else np.concatenate(chunks)
-        del chunks
-    out["sha256"] = tables.sha256
-    return out
+            sinks[c].append(v)
+    return tables.sha256
 
 
 def _parse_block(path: str, table: Table, sensors: Sequence[SensorConfig],
@@ -225,45 +231,67 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
     numbers assume no line break inside a quoted value.
     """
     files = tuple(str(p) for p in paths)
-    parts = [_read_one(f, i, sensors) for i, f in enumerate(files)]
-    digests = tuple(str(p.pop("sha256")) for p in parts)
-    if len(parts) == 1:
-        cols = parts.pop()
-    elif parts:
-        cols = {c: np.concatenate([p[c] for p in parts]) for c in parts[0]}
-        parts.clear()
-    else:
-        cols = {c: np.empty(0) for c in (*_COLUMNS, "source", "line")}
-    if window is not None:
-        inside = (cols["time"] >= window[0]) & (cols["time"] < window[1])
-        cols = {c: v[inside] for c, v in cols.items()}
-    # by time, then by the plot's own values, and only then by file and line: plots that
-    # share a time (a radar stamping a whole revolution at once) come out in the same
-    # order whatever the order of the rows or the split of the files
-    order = np.lexsort((cols["line"], cols["source"], cols["sigma_m"], cols["scan"], cols["lon"],
-                        cols["lat"], cols["sensor"], cols["time"]))
-    for c in cols:  # one column at a time: the old one is freed as the new one is made
-        cols[c] = cols[c][order]
+    sinks = {c: ColumnWriter(_DTYPES[c]) for c in _ON_DISK}
+    times: list[NDArray[np.float64]] = []
+    digests = tuple(_read_one(f, i, sensors, sinks, times, window) for i, f in enumerate(files))
+    time = np.concatenate(times) if times else np.empty(0)
+    del times
+    stored = {c: w.finish() for c, w in sinks.items()}
+    order, keep = _sorted_order(time, stored)
+    time = time[order]
+    dropped = int(keep.size - np.count_nonzero(keep)) if keep is not None else 0
+    if keep is not None:
+        time, order = time[keep], order[keep]
+    # every other column in that order, one at a time (read whole, permuted, written back)
+    out: dict[str, Any] = {}
+    for c in _ON_DISK:
+        column = np.asarray(stored.pop(c))[order]
+        if c == "sensor":  # used all along the run: it stays in memory
+            out[c] = column
+            continue
+        w = ColumnWriter(_DTYPES[c])
+        w.append(column)
+        out[c] = w.finish()
+        del column, w
     del order
-    keep = _first_of_duplicates(cols)
-    dropped = int(keep.size - np.count_nonzero(keep))
-    if dropped:
-        for c in cols:
-            cols[c] = cols[c][keep]
-    release_unused_memory()  # the reading's scratch space (text columns) back to the system
+    release_unused_memory()  # the reading's scratch space (text, order) back to the system
     return PlotTable(
-        time=cols["time"].astype(np.float64, copy=False),
-        sensor=cols["sensor"].astype(np.int64, copy=False),
-        lat_deg=cols["lat"].astype(np.float64, copy=False),
-        lon_deg=cols["lon"].astype(np.float64, copy=False),
-        scan=cols["scan"].astype(np.int64, copy=False),
-        sigma_m=cols["sigma_m"].astype(np.float64, copy=False),
-        source=cols["source"].astype(np.int64, copy=False),
-        line=cols["line"].astype(np.int64, copy=False),
-        files=files,
-        duplicates_dropped=dropped,
-        sha256=digests,
+        time=time.astype(np.float64, copy=False), sensor=out["sensor"], lat_deg=out["lat"],
+        lon_deg=out["lon"], scan=out["scan"], sigma_m=out["sigma_m"], source=out["source"],
+        line=out["line"], files=files, duplicates_dropped=dropped, sha256=digests,
     )
+
+
+def _sorted_order(time: NDArray[np.float64], stored: dict[str, StoredColumn],
+                  ) -> tuple[NDArray[np.int64], NDArray[np.bool_] | None]:
+    """The rows' order, and the mask of the rows kept (``None``: no duplicate), in that order.
+
+    By time, then by the plot's own values, and only then by file and line:
+    plots that share a time (a radar stamping a whole revolution at once)
+    come out in the same order whatever the order of the rows or the split
+    of the files. Only the rows that share their time with another are
+    looked at beyond their time (read back from disk), so the sort needs
+    the time column alone in memory.
+    """
+    order = np.argsort(time, kind="stable")
+    t = time[order]
+    same = t[1:] == t[:-1]
+    if not same.any():
+        return order, None
+    tied = np.zeros(t.size, dtype=bool)
+    tied[1:] |= same
+    tied[:-1] |= same
+    pos = np.flatnonzero(tied)  # positions (in time order) of rows in runs of one time
+    rows = order[pos]
+    cols = {c: np.asarray(stored[c][rows]) for c in _ON_DISK}
+    cols["time"] = t[pos]
+    sub = np.lexsort((cols["line"], cols["source"], cols["sigma_m"], cols["scan"], cols["lon"],
+                      cols["lat"], cols["sensor"], cols["time"]))
+    # each run of one time holds consecutive positions, and ``sub`` keeps each run in its place
+    order[pos] = rows[sub]
+    keep = np.ones(t.size, dtype=bool)
+    keep[pos] = _first_of_duplicates({c: v[sub] for c, v in cols.items()})
+    return order, (None if keep.all() else keep)
 
 
 def _first_of_duplicates(cols: dict[str, NDArray]) -> NDArray[np.bool_]:
@@ -342,7 +370,8 @@ def scan_arrays(plots: PlotTable, sensors: Sequence[SensorConfig]) -> ScanArrays
         return ScanArrays(sensor=empty, number=empty, time=np.empty(0), offsets=np.zeros(1, np.int64),
                           rows=empty)
     sensor = plots.sensor
-    has_scan = plots.scan >= 0
+    scan = np.asarray(plots.scan)
+    has_scan = scan >= 0
     n_sensors = max(len(sensors), int(sensor.max()) + 1)
     with_scan = np.bincount(sensor, weights=has_scan, minlength=n_sensors)
     total = np.bincount(sensor, minlength=n_sensors)
@@ -361,7 +390,8 @@ def scan_arrays(plots: PlotTable, sensors: Sequence[SensorConfig]) -> ScanArrays
     np.minimum.at(first, sensor, plots.time)
     period = np.array([s.scan_period_s for s in sensors] + [1.0] * (n_sensors - len(sensors)))
     rev = np.floor((plots.time - first[sensor]) / period[sensor]).astype(np.int64)
-    number = np.where(has_scan, plots.scan, rev)
+    number = np.where(has_scan, scan, rev)
+    del scan
 
     order = np.lexsort((plots.time, number, sensor))
     s_sorted, n_sorted = sensor[order], number[order]
