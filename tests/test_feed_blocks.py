@@ -23,8 +23,8 @@ from test_feeds import SENSORS, T0  # the two Calder radars and 2026-05-04T06:00
 
 from harbourwatch.errors import InputError, OutputError
 from harbourwatch.io import table_reader, text
-from harbourwatch.io.feeds import PlotTable, group_scans, read_feeds
 from harbourwatch.io.columns import StoredColumn
+from harbourwatch.io.feeds import PlotTable, group_scans, read_feeds
 from harbourwatch.io.plotstore import STORED, store_plot_columns
 
 COLUMNS = ("time", "sensor", "lat_deg", "lon_deg", "scan", "sigma_m", "source", "line")
@@ -232,3 +232,46 @@ def test_scan_table_gives_the_scans_of_group_scans(n, seed, numbered):
         np.testing.assert_array_equal(a.plots, b.plots)
     # every plot in exactly one scan
     assert sorted(np.concatenate([sc.plots for sc in walked]).tolist() if walked else []) == list(range(n))
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(data=st.data(), n=st.integers(0, 300), split=st.integers(1, 3))
+def test_order_and_duplicates_equal_a_full_lexsort(tmp_path, data, n, split):
+    # few distinct times (a radar stamping whole revolutions at once), repeated rows
+    seed = data.draw(st.integers(0, 2**32 - 1))
+    rng = np.random.default_rng(seed)
+    t = T0 + rng.integers(0, 6, n) * 2.5
+    sensor = rng.integers(0, 2, n)
+    lat = 54.3 + rng.integers(0, 4, n) * 1e-3
+    lon = 10.15 + rng.integers(0, 4, n) * 1e-3
+    sigma = np.where(rng.random(n) < 0.5, np.nan, 5.0)
+    names = np.array(["calder-head", "sound-light"])
+    lines = [f"{t[k]:.1f},{names[sensor[k]]},{lat[k]:.4f},{lon[k]:.4f},"
+             f"{'' if np.isnan(sigma[k]) else '5.0'}" for k in range(n)]
+    cuts = sorted(rng.integers(0, n + 1, split - 1).tolist())
+    paths = []
+    for i, (a, b) in enumerate(zip([0, *cuts], [*cuts, n], strict=True)):
+        p = tmp_path / f"part{i}.csv"
+        p.write_text("time,sensor,lat,lon,sigma_m\n" + "".join(x + "\n" for x in lines[a:b]))
+        paths.append(p)
+    got = read_feeds([str(p) for p in paths], SENSORS)
+    # the reference: numpy's lexsort over every column at once (file, then line last), then the
+    # first of each run of rows equal in the six contract fields
+    src = np.concatenate([np.full(b - a, i) for i, (a, b) in
+                          enumerate(zip([0, *cuts], [*cuts, n], strict=True))]).astype(int)
+    line = np.concatenate([np.arange(2, 2 + b - a) for a, b in
+                           zip([0, *cuts], [*cuts, n], strict=True)]).astype(int)
+    tt = np.array([float(f"{x:.1f}") for x in t]) if n else np.empty(0)
+    la = np.array([float(f"{x:.4f}") for x in lat]) if n else np.empty(0)
+    lo = np.array([float(f"{x:.4f}") for x in lon]) if n else np.empty(0)
+    order = np.lexsort((line, src, sigma, np.full(n, -1), lo, la, sensor, tt))
+    seen, keep = set(), []
+    for k in order:
+        key = (tt[k], sensor[k], la[k], lo[k], -1 if np.isnan(sigma[k]) else sigma[k])
+        keep.append(key not in seen)
+        seen.add(key)
+    kept = order[np.array(keep, bool)] if n else order
+    np.testing.assert_array_equal(np.asarray(got.line), line[kept])
+    np.testing.assert_array_equal(np.asarray(got.source), src[kept])
+    np.testing.assert_array_equal(got.time, tt[kept])
+    assert got.duplicates_dropped == n - kept.size
