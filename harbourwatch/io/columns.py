@@ -2,7 +2,7 @@
 
 A long feed's plots are too many to keep every column in memory (48 bytes a
 plot for the positions, ``sigma_m``, scan numbers and lines: 1 GB for a
-busy week). A :class:`ColumnFile` is an unlinked temporary file (gone with
+busy week). A :class:`ScratchFile` is an unlinked temporary file (gone with
 the process, whatever ends it) in the system's temporary folder
 (``TMPDIR``); :class:`StoredColumn` is a 1-D column in one, read with
 explicit positional reads so nothing stays resident;
@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import os
 import tempfile
-import threading
 from typing import Any
 
 import numpy as np
@@ -21,33 +20,44 @@ from numpy.typing import DTypeLike, NDArray
 
 from harbourwatch.errors import OutputError
 
-__all__ = ["ColumnFile", "StoredColumn", "ColumnWriter"]
+__all__ = ["ScratchFile", "StoredColumn", "ColumnWriter"]
 
 #: An index spread over fewer rows than this many times its length is read as one range.
 _RANGE_FACTOR = 8
 
 
-class ColumnFile:
-    """An unlinked temporary file shared by the columns written to it."""
+class ScratchFile:
+    """An unlinked temporary file: appended to, read back with positional reads.
 
-    def __init__(self, folder: str | None = None) -> None:
+    Unlinked as soon as it is created, so it is gone with the process
+    whatever ends it; it lives in the system's temporary folder (``TMPDIR``)
+    unless ``folder`` is given. A write that fails (a full or read-only
+    folder) is an :class:`~harbourwatch.errors.OutputError` naming the folder
+    and ``TMPDIR``, with ``room`` saying how much a run needs there.
+    """
+
+    def __init__(self, folder: str | None = None, *, prefix: str = "harbourwatch-plots-",
+                 room: str = "a run keeps 48 bytes there per plot") -> None:
         self.folder = folder if folder is not None else tempfile.gettempdir()
+        self.prefix, self.room = prefix, room
         try:
-            self.handle = tempfile.TemporaryFile(prefix="harbourwatch-plots-", dir=folder)
+            self.handle = tempfile.TemporaryFile(prefix=prefix, dir=folder)
         except OSError as exc:
             raise self.error(exc) from None
         self.fd = self.handle.fileno()
         self.size = 0
-        self.lock = threading.Lock()
 
     def error(self, exc: OSError) -> OutputError:
+        """The user-facing error of a temporary file that cannot be written."""
         why = exc.strerror or str(exc)
         return OutputError(f"{why} in the temporary folder {self.folder} (set TMPDIR to a folder "
-                           "with room; a run keeps 48 bytes there per plot)",
-                           path=os.path.join(self.folder, "harbourwatch-plots-* (unlinked)"))
+                           f"with room; {self.room})",
+                           path=os.path.join(self.folder, f"{self.prefix}* (unlinked)"))
 
-    def append(self, data: NDArray[Any]) -> int:
-        view = memoryview(np.ascontiguousarray(data).view(np.uint8).data)  # type: ignore[arg-type]
+    def append(self, data: NDArray[Any] | bytes) -> int:
+        """Write ``data``'s bytes at the end; return the offset they start at."""
+        raw = data if isinstance(data, bytes) else np.ascontiguousarray(data).view(np.uint8).data
+        view = memoryview(raw)  # type: ignore[arg-type]
         offset = self.size
         try:
             while view:  # pwrite may write less than asked
@@ -59,15 +69,24 @@ class ColumnFile:
         return offset
 
     def read(self, offset: int, nbytes: int) -> NDArray[np.uint8]:
-        buf = np.empty(nbytes, np.uint8)
+        """``nbytes`` bytes from ``offset``, into a new array."""
+        buf = np.empty(nbytes, np.uint8)  # not zero-filled: every byte is read into it
         view = memoryview(buf.data)  # type: ignore[arg-type]
         got = 0
         while got < nbytes:
             n = os.preadv(self.fd, [view[got:]], offset + got)
             if n <= 0:
-                raise OSError(f"plot file ended at byte {offset + got} of {offset + nbytes}")
+                raise OSError(f"temporary file ended at byte {offset + got} of {offset + nbytes}")
             got += n
         return buf
+
+    @property
+    def closed(self) -> bool:
+        return bool(self.handle.closed)
+
+    def close(self) -> None:
+        """Close the file (its space is freed at once)."""
+        self.handle.close()
 
 
 class StoredColumn:
@@ -79,7 +98,7 @@ class StoredColumn:
     that look at every plot once).
     """
 
-    def __init__(self, file: ColumnFile, offset: int, dtype: DTypeLike, size: int) -> None:
+    def __init__(self, file: ScratchFile, offset: int, dtype: DTypeLike, size: int) -> None:
         self._file = file
         self._offset = offset
         self.dtype = np.dtype(dtype)
@@ -140,7 +159,7 @@ class ColumnWriter:
     """A column appended block by block to a file of its own; :meth:`finish` gives it back."""
 
     def __init__(self, dtype: DTypeLike, folder: str | None = None) -> None:
-        self.file = ColumnFile(folder)
+        self.file = ScratchFile(folder)
         self.dtype = np.dtype(dtype)
         self.size = 0
 

@@ -20,7 +20,7 @@ from typing import Any, cast, overload
 
 import numpy as np
 
-from harbourwatch.io.columns import ColumnFile, StoredColumn
+from harbourwatch.io.columns import ScratchFile, StoredColumn
 from harbourwatch.io.feeds import PlotTable, Scan, ScanArrays
 
 __all__ = ["ScanTable", "store_plot_columns", "STORED"]
@@ -90,7 +90,7 @@ def store_plot_columns(plots: PlotTable, *, folder: str | None = None,
     """
     if len(plots) == 0:
         return plots, (ScanTable(scans) if scans is not None else None)
-    file = ColumnFile(folder)
+    file = ScratchFile(folder)
     moved: dict[str, Any] = {}
     for name in STORED:
         col = getattr(plots, name)

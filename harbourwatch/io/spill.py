@@ -16,8 +16,6 @@ a second thread while the rules run).
 
 from __future__ import annotations
 
-import os
-import tempfile
 import threading
 from collections import OrderedDict
 from collections.abc import Sequence
@@ -26,7 +24,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from harbourwatch.errors import OutputError
+from harbourwatch.io.columns import ScratchFile
 
 __all__ = ["SpillStore", "CACHE_BYTES"]
 
@@ -46,25 +44,14 @@ class SpillStore:
     """
 
     def __init__(self, *, cache_bytes: int = CACHE_BYTES, folder: str | None = None) -> None:
-        self._folder = folder if folder is not None else tempfile.gettempdir()
-        try:
-            self._file = tempfile.TemporaryFile(prefix="harbourwatch-spill-", dir=folder)
-        except OSError as exc:
-            raise self._error(exc) from None
-        self._fd = self._file.fileno()
+        self._file = ScratchFile(folder, prefix="harbourwatch-spill-",
+                                 room="a run needs about 45 MB there per busy feed hour")
         self._lock = threading.Lock()
         self._index: list[tuple[int, tuple[tuple[str, tuple[int, ...]], ...], int]] = []
         self._cache: OrderedDict[int, tuple[NDArray[Any], ...]] = OrderedDict()
         self._cache_room = cache_bytes
         self._cached = 0
         self.bytes_written = 0
-
-    def _error(self, exc: OSError) -> OutputError:
-        """The user-facing error of a temporary file that cannot be written."""
-        why = exc.strerror or str(exc)
-        return OutputError(f"{why} in the temporary folder {self._folder} (set TMPDIR to a folder "
-                           "with room; a run needs about 45 MB there per busy feed hour)",
-                           path=os.path.join(self._folder, "harbourwatch-spill-* (unlinked)"))
 
     def put(self, arrays: Sequence[NDArray[Any]]) -> int:
         """Write a group of arrays; return its key for :meth:`get`."""
@@ -75,14 +62,7 @@ class SpillStore:
         parts = [np.ascontiguousarray(a) for a in arrays]
         layout = tuple((a.dtype.str, a.shape) for a in parts)
         data = b"".join(a.tobytes() for a in parts)
-        offset = self.bytes_written
-        view = memoryview(data)
-        try:
-            while view:  # pwrite may write less than asked
-                done = os.pwrite(self._fd, view, offset + len(data) - len(view))
-                view = view[done:]
-        except OSError as exc:  # a full or read-only temporary folder: the user can fix that
-            raise self._error(exc) from None
+        offset = self._file.append(data)  # a full or read-only folder: an OutputError
         self.bytes_written += len(data)
         self._index.append((offset, layout, len(data)))
         return len(self._index) - 1
@@ -107,14 +87,7 @@ class SpillStore:
                 self._cache.move_to_end(key)
                 return hit
             offset, layout, size = self._index[key]
-        buf = np.empty(size, np.uint8)  # not zero-filled: every byte is read into it
-        view = memoryview(buf.data)  # type: ignore[arg-type]
-        got = 0
-        while got < size:
-            n = os.preadv(self._fd, [view[got:]], offset + got)
-            if n <= 0:
-                raise OSError(f"spill file ended at byte {offset + got} of {offset + size}")
-            got += n
+        buf = self._file.read(offset, size)
         out: list[NDArray[Any]] = []
         pos = 0
         for dtype, shape in layout:
