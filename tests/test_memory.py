@@ -13,6 +13,7 @@ from harbourwatch.io.spill import SpillStore
 from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.trajectories import (
     AsSeenTable,
+    SpilledAsSeenTable,
     SpilledTrajectory,
     Trajectory,
     TrajectorySet,
@@ -240,11 +241,46 @@ def test_as_seen_log_in_blocks_gives_the_one_piece_table(monkeypatch, spilled):
     for r in rows:
         log.append(r)
     table = log.table(ids)
+    assert isinstance(table, SpilledAsSeenTable) is spilled  # on disk when there is a store
     ref = _as_seen_reference(rows, ids)
-    assert log.rows == ref["time"].size
+    assert log.rows == ref["time"].size == table.rows
     for name, want in ref.items():
         assert np.array_equal(getattr(table, name), want, equal_nan=name == "length"), name
     assert table.track.dtype.itemsize < np.dtype("<U16").itemsize  # as wide as the longest id
+    # read block by block, the rows are the same rows in the same order
+    for rows_per_block in (5, 1 << 16):
+        got = list(table.blocks(rows_per_block))
+        assert max(b.rows for b in got) <= rows_per_block
+        for name, want in ref.items():
+            joined = np.concatenate([getattr(b, name) for b in got])
+            assert np.array_equal(joined, want, equal_nan=name == "length"), name
+    assert table.sized == bool(np.isfinite(ref["length"]).any())
+
+
+def _spilled_as_seen(a: AsSeenTable, store: SpillStore, block: int) -> SpilledAsSeenTable:
+    """``a`` written to ``store`` in groups of ``block`` rows (as the filter leaves it)."""
+    names = np.unique(a.track)
+    code = np.searchsorted(names, a.track).astype(np.int32)
+    length = a.length if a.length is not None else np.full(a.rows, np.nan)
+    keys = tuple(store.put([a.time[i:i + block], code[i:i + block], a.mean[i:i + block],
+                            a.sd[i:i + block], a.existence[i:i + block], length[i:i + block]])
+                 for i in range(0, a.rows, block))
+    return SpilledAsSeenTable(store=store, keys=keys, names=names, rows=a.rows, sized=a.sized)
+
+
+@pytest.mark.parametrize("sized", [False, True])
+def test_a_spilled_as_seen_table_gives_the_same_csv_and_replay(sized):
+    from harbourwatch.report._data import replay_payload
+
+    ts = _set(4, sized)
+    with SpillStore(cache_bytes=0) as store:
+        spilled = TrajectorySet(trajectories=ts.trajectories, frame=ts.frame,
+                                as_seen=_spilled_as_seen(ts.as_seen, store, 4),
+                                feed_start=ts.feed_start, feed_end=ts.feed_end)
+        assert "".join(as_seen_csv_chunks(spilled)) == "".join(as_seen_csv_chunks(ts))
+        want = replay_payload(ts)
+        assert want["as_seen"]  # the case has as-seen rows to replay
+        assert json.dumps(replay_payload(spilled)) == json.dumps(want)
 
 
 def test_a_full_temporary_folder_is_an_output_error_naming_it(tmp_path, monkeypatch):

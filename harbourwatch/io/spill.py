@@ -31,7 +31,10 @@ from harbourwatch.errors import OutputError
 __all__ = ["SpillStore", "CACHE_BYTES"]
 
 #: Bytes of recently read groups kept in memory (a trajectory read again soon costs nothing).
-CACHE_BYTES = 128 << 20
+#: Its readers go through the trajectories one at a time, each reading a few arrays of the
+#: trajectory at hand several times: room for the largest trajectory's few arrays is enough
+#: (all nine arrays of a day-long trajectory are about 12 MB).
+CACHE_BYTES = 32 << 20
 
 
 class SpillStore:

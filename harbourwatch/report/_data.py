@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import shapely
@@ -113,25 +114,6 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
             entry["hull"] = [round(sz[0], 1), round(sz[1], 1)]
             entry["h"] = encode_headings(hd)
         hind.append(entry)
-    seen: list[dict[str, object]] = []
-    a = ts.as_seen
-    sized = {tr.id: tr for tr in ts.trajectories if tr.size is not None}
-    if a.time.size:
-        e_all, n_all = a.mean[:, 0], a.mean[:, 2]
-        lat_all, lon_all = ts.frame.to_wgs84(e_all, n_all)
-        kstep = np.floor((a.time - t0) / step + 1e-9).astype(np.int64)
-        ids = np.asarray(a.track).astype(str)
-        for tid in sorted(set(ids.tolist())):
-            rows = np.flatnonzero(ids == tid)
-            rows = rows[np.argsort(a.time[rows], kind="stable")]
-            k = kstep[rows]
-            last = np.concatenate([k[1:] != k[:-1], [True]])  # last estimate in each step
-            r = rows[last]
-            entry = {"id": tid, "p": _encode(np.round(kstep[r] * step).astype(np.int64),
-                                             lat_all[r], lon_all[r])}
-            if tid in sized:
-                entry.update(_as_seen_hull(ts, sized[tid], r))
-            seen.append(entry)
     return {
         "t0": t0,
         "t1": ts.feed_end,
@@ -139,20 +121,58 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
         "trail": TRAIL_S,
         "max_gap": AS_SEEN_MAX_GAP_STEPS * step,
         "hindsight": hind,
-        "as_seen": seen,
+        "as_seen": _as_seen_payload(ts),
     }
 
 
-def _as_seen_hull(ts: TrajectorySet, tr: Trajectory, rows: NDArray[np.int64]) -> dict[str, object]:
+def _last_in_step(k: NDArray[np.int64]) -> NDArray[np.bool_]:
+    """Rows (in time order) that are the last of their replay step."""
+    return np.concatenate([k[1:] != k[:-1], [True]])
+
+
+def _as_seen_payload(ts: TrajectorySet) -> list[dict[str, object]]:
+    """The ``as_seen`` part of :func:`replay_payload`, read one block of the table at a time.
+
+    The table is in time order, so each track's rows of a block are in time
+    order: keeping the last row of each step per block, then again over the
+    kept rows of all blocks, keeps the last row of each step. Only those
+    rows are held (a spilled table is never in memory whole).
+    """
+    t0, step = ts.feed_start, REPLAY_STEP_S
+    sized = {tr.id: tr for tr in ts.trajectories if tr.extent is not None}
+    kept: dict[str, list[tuple[NDArray[Any], ...]]] = {}
+    for b in ts.as_seen.blocks():
+        lat, lon = ts.frame.to_wgs84(b.mean[:, 0], b.mean[:, 2])
+        kstep = np.floor((b.time - t0) / step + 1e-9).astype(np.int64)
+        ids, inv = np.unique(np.asarray(b.track).astype(str), return_inverse=True)
+        by_track = np.argsort(inv, kind="stable")  # each track's rows, in time order
+        cuts = np.searchsorted(inv[by_track], np.arange(ids.size + 1))
+        for g, tid in enumerate(ids.tolist()):
+            rows = by_track[cuts[g] : cuts[g + 1]]
+            r = rows[_last_in_step(kstep[rows])]
+            part: tuple[NDArray[Any], ...] = (kstep[r], lat[r], lon[r])
+            if tid in sized and b.length is not None:
+                part += (b.length[r], b.mean[r])
+            kept.setdefault(tid, []).append(part)
+    seen: list[dict[str, object]] = []
+    for tid in sorted(kept):
+        cols = [np.concatenate(c) for c in zip(*kept.pop(tid), strict=True)]
+        last = _last_in_step(cols[0])
+        cols = [c[last] for c in cols]
+        entry: dict[str, object] = {
+            "id": tid, "p": _encode(np.round(cols[0] * step).astype(np.int64), cols[1], cols[2])}
+        if len(cols) == 5:
+            entry.update(_as_seen_hull(ts, sized[tid], cols[3], cols[4]))
+        seen.append(entry)
+    return seen
+
+
+def _as_seen_hull(ts: TrajectorySet, tr: Trajectory, length: Array, m: Array) -> dict[str, object]:
     """As-seen outline fields of one vessel: the length as known then (0: not yet judged
     extended), the final estimate's beam-to-length ratio, headings from the filtered state."""
-    a, sz = ts.as_seen, tr.size
-    if a.length is None or sz is None:
+    sz = tr.size
+    if sz is None or not np.isfinite(length).any():
         return {}
-    length = a.length[rows]
-    if not np.isfinite(length).any():
-        return {}
-    m = a.mean[rows]
     hd, _ = true_headings(ts.frame, m[:, 0], m[:, 2], m[:, 1], m[:, 3], sz[2])
     whole = np.round(np.nan_to_num(length, nan=0.0)).astype(np.int64)
     return {"len": [int(v) for v in np.diff(whole, prepend=0)],

@@ -204,26 +204,26 @@ def as_seen_csv_chunks(tset: TrajectorySet, *, rows: int = CHUNK_ROWS) -> Iterat
     from harbourwatch.io.timefmt import format_utc_list
 
     a = tset.as_seen
-    if a.time.size == 0:
+    if a.rows == 0:
         yield ",".join(AS_SEEN_COLUMNS) + "\n"
         return
     header: tuple[str, ...] = AS_SEEN_COLUMNS
     decimals: list[int | None] = [None, None, 7, 7, 2, 1, 1, 4]
-    sized = a.length is not None and bool(np.isfinite(a.length).any())  # as in tracks.csv
+    sized = a.sized  # as in tracks.csv
     if sized:
         header, decimals = AS_SEEN_COLUMNS + ("length_m",), decimals + [None]
-    for r0 in range(0, int(a.time.size), rows):
-        sl = slice(r0, r0 + rows)
-        lat, lon, sog, cog = _sog_cog(tset.frame, a.mean[sl])
-        columns: list[Any] = [format_utc_list(a.time[sl]), a.track[sl], lat, lon, sog, cog,
-                              a.sd[sl], a.existence[sl]]
+    first = True
+    for b in a.blocks(rows):  # a spilled table is read one block at a time
+        lat, lon, sog, cog = _sog_cog(tset.frame, b.mean)
+        columns: list[Any] = [format_utc_list(b.time), b.track, lat, lon, sog, cog,
+                              b.sd, b.existence]
         if sized:
-            assert a.length is not None
-            length = a.length[sl]
-            text = np.char.mod("%.1f", length).astype(object)
-            text[~np.isfinite(length)] = ""
+            assert b.length is not None
+            text = np.char.mod("%.1f", b.length).astype(object)
+            text[~np.isfinite(b.length)] = ""
             columns.append(text.tolist())
-        yield _csv_text(header, columns, decimals, include_header=r0 == 0)
+        yield _csv_text(header, columns, decimals, include_header=first)
+        first = False
 
 
 def as_seen_csv_text(tset: TrajectorySet) -> str:
