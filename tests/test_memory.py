@@ -73,6 +73,10 @@ def test_streamed_tables_are_the_bytes_of_the_whole_texts(sized):
     one_text = json.dumps(trajectories_geojson(ts), separators=(",", ":")) + "\n"
     for features in (1, 2, 100):
         assert "".join(geojson_chunks(ts, features=features)) == one_text
+    for states in (1, 30, 10**6):  # a chunk ends at a number of positions too
+        chunks = list(geojson_chunks(ts, states=states))
+        assert "".join(chunks) == one_text
+        assert (len(chunks) == 2 + len(ts)) is (states == 1)
 
 
 def test_streamed_tables_of_an_empty_set():

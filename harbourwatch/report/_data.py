@@ -24,6 +24,8 @@ from harbourwatch.trajectories import Trajectory, TrajectorySet
 __all__ = [
     "SIMPLIFY_TOLERANCE_M",
     "REPLAY_STEP_S",
+    "REPLAY_MAX_POSITIONS",
+    "replay_step",
     "TRAIL_S",
     "GAP_SCAN_PERIODS",
     "track_latlon",
@@ -40,6 +42,12 @@ __all__ = [
 SIMPLIFY_TOLERANCE_M = 5.0
 #: Time step of the replay data, seconds.
 REPLAY_STEP_S = 10.0
+#: Most positions of the overview's hindsight replay at :data:`REPLAY_STEP_S` (a day of a
+#: busy harbour: about 350,000). A longer feed is replayed in coarser steps, the smallest
+#: whole multiple of :data:`REPLAY_STEP_S` that keeps within it (the as-seen replay takes
+#: the same steps), so that the page and the memory to build it stay bounded at any length
+#: of feed; the tables keep every state.
+REPLAY_MAX_POSITIONS = 600_000
 #: Length of the replay trail behind each vessel marker, seconds.
 TRAIL_S = 300.0
 #: A radar with no scan for more than this many scan periods is shown as out.
@@ -67,15 +75,28 @@ def _encode(step: NDArray[np.int64], lat: Array, lon: Array) -> list[int]:
     return [int(v) for v in d.ravel()]
 
 
-def replay_payload(ts: TrajectorySet) -> dict[str, object]:
+def replay_step(ts: TrajectorySet, max_positions: int = REPLAY_MAX_POSITIONS) -> float:
+    """The replay's time step: :data:`REPLAY_STEP_S`, or the smallest whole multiple of it
+    that keeps the hindsight replay within about ``max_positions`` positions."""
+    t0, step = ts.feed_start, REPLAY_STEP_S
+    n = 0
+    for tr in ts.trajectories:
+        k0 = int(np.ceil((tr.start - t0) / step - 1e-9))
+        k1 = int(np.floor((tr.end - t0) / step + 1e-9))
+        n += max(k1 - k0 + 1, 0) + 2  # the grid inside its span, its first and last state
+    return step * max(1, int(np.ceil(n / max(max_positions, 1))))
+
+
+def replay_payload(ts: TrajectorySet, step: float | None = None) -> dict[str, object]:
     """Compact replay data: per track, delta-encoded ``[t_s, lat_e5, lon_e5]`` triples.
 
     ``t_s`` is whole seconds since ``feed_start``; ``lat_e5``/``lon_e5`` are
     degrees times 1e5 rounded. The first triple is absolute, each later one
     the difference to the previous.
 
-    ``hindsight`` holds the smoothed tracks linearly interpolated to the
-    :data:`REPLAY_STEP_S` grid (from ``feed_start``) inside each track's span.
+    ``hindsight`` holds the smoothed tracks linearly interpolated to a grid
+    of ``step`` seconds (from ``feed_start``; default :func:`replay_step`)
+    inside each track's span.
     ``as_seen`` holds, per track id, the last as-seen estimate in each grid
     step (no interpolation; the page does not join points further apart
     than ``max_gap`` seconds). Coordinates are kept to 5 decimals (about 1 m).
@@ -90,7 +111,7 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
     beam-to-length ratio.
     """
     t0 = ts.feed_start
-    step = REPLAY_STEP_S
+    step = replay_step(ts) if step is None else step
     hind: list[dict[str, object]] = []
     for tr in ts.trajectories:
         k0 = int(np.ceil((tr.start - t0) / step - 1e-9))
@@ -121,7 +142,7 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
         "trail": TRAIL_S,
         "max_gap": AS_SEEN_MAX_GAP_STEPS * step,
         "hindsight": hind,
-        "as_seen": _as_seen_payload(ts),
+        "as_seen": _as_seen_payload(ts, step),
     }
 
 
@@ -130,7 +151,7 @@ def _last_in_step(k: NDArray[np.int64]) -> NDArray[np.bool_]:
     return np.concatenate([k[1:] != k[:-1], [True]])
 
 
-def _as_seen_payload(ts: TrajectorySet) -> list[dict[str, object]]:
+def _as_seen_payload(ts: TrajectorySet, step: float) -> list[dict[str, object]]:
     """The ``as_seen`` part of :func:`replay_payload`, read one block of the table at a time.
 
     The table is in time order, so each track's rows of a block are in time
@@ -138,7 +159,7 @@ def _as_seen_payload(ts: TrajectorySet) -> list[dict[str, object]]:
     kept rows of all blocks, keeps the last row of each step. Only those
     rows are held (a spilled table is never in memory whole).
     """
-    t0, step = ts.feed_start, REPLAY_STEP_S
+    t0 = ts.feed_start
     sized = {tr.id: tr for tr in ts.trajectories if tr.extent is not None}
     kept: dict[str, list[tuple[NDArray[Any], ...]]] = {}
     for b in ts.as_seen.blocks():

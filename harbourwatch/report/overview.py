@@ -16,6 +16,7 @@ from harbourwatch.report._data import (
     SIMPLIFY_TOLERANCE_M,
     TRAIL_S,
     replay_payload,
+    replay_step,
     scan_series,
     state_index,
     track_latlon,
@@ -328,6 +329,7 @@ def overview_html(inputs: ReportInputs) -> str:
     tz = inputs.display_tz
     page = {"map": parts.name, "fit": round5(bounds)}
     scripts: tuple[str, ...]
+    step = REPLAY_STEP_S  # coarser for a long feed (replay_step)
     if empty:
         day = "no plots in this feed"
         head = ("<h1>Shift review: no plots in this feed</h1>"
@@ -346,7 +348,8 @@ def overview_html(inputs: ReportInputs) -> str:
             f"({n_present} present at end, {len(ts) - n_present} departed) \u00b7 "
             f'{len(inputs.alerts)} alert(s) \u00b7 {len(inputs.plots)} plots from '
             f"{len(inputs.sensors)} radar(s)</p>")
-        payload = replay_payload(ts)
+        step = replay_step(ts)
+        payload = replay_payload(ts, step)
         payload["map"] = parts.name
         payload["tz"] = tz
         payload["day"] = day
@@ -374,7 +377,7 @@ def overview_html(inputs: ReportInputs) -> str:
         f"{_legend(any(tr.extent is not None for tr in ts.trajectories))}{vessels}"
         f'<p class="hw-sub">Trajectories are smoothed estimates (using the whole shift), drawn '
         f"simplified to {SIMPLIFY_TOLERANCE_M:g} m; the replay is resampled to "
-        f"{REPLAY_STEP_S:g} s and shows a trail of the last few minutes. \u201cAs seen at the "
+        f"{step:g} s and shows a trail of the last few minutes. \u201cAs seen at the "
         "time\u201d shows the estimates that were available at each moment without hindsight. "
         "No basemap is drawn unless a tile server was configured; land is drawn from the "
         "zones file. Times are UTC"
@@ -383,7 +386,7 @@ def overview_html(inputs: ReportInputs) -> str:
         f"{_alerts_table(inputs)}</section>"
         '<section class="hw-noprint"><h2 id="traffic">Traffic</h2>'
         f"{'<p>No traffic: no plots in this feed.</p>' if empty else _traffic(inputs)}</section>"
-        f'<section class="hw-noprint">{how_to_read()}</section>'
+        f'<section class="hw-noprint">{how_to_read(step)}</section>'
         '<section class="hw-noprint"><h2 id="provenance">Run provenance</h2>'
         f"{provenance_html(dict(inputs.provenance))}</section>"
     )

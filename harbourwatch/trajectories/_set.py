@@ -69,11 +69,15 @@ TRACK_COLUMNS = ("track", "time", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "ex
 SIZE_COLUMNS = ("length_m", "beam_m", "heading_deg", "plots_per_scan")
 AS_SEEN_COLUMNS = ("time", "track", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "existence")
 
-#: Rows of a CSV chunk (about 25 MB of text): large enough for pyarrow's writer to run at
-#: full speed, small enough that a chunk's columns are a few tens of megabytes.
-CHUNK_ROWS = 1 << 18
-#: Features of a GeoJSON chunk.
+#: Rows of a CSV chunk (about 6 MB of text): large enough for pyarrow's writer to run at
+#: full speed, small enough that a chunk's columns and their text (some 600 bytes a row
+#: while it is made) stay near 40 MB.
+CHUNK_ROWS = 1 << 16
+#: Features of a GeoJSON chunk (at most; see :data:`CHUNK_STATES`).
 CHUNK_FEATURES = 256
+#: States of a GeoJSON chunk: a chunk ends once its features hold this many positions
+#: (each feature is turned to text at once, so a chunk is text of about 2 MB).
+CHUNK_STATES = 1 << 16
 
 
 def _sog_cog(frame: LocalFrame, mean: Array) -> tuple[Array, Array, Array, Array]:
@@ -310,14 +314,24 @@ def trajectories_geojson(tset: TrajectorySet) -> dict[str, Any]:
             "features": [_feature(tset.frame, t) for t in tset.trajectories]}
 
 
-def geojson_chunks(tset: TrajectorySet, *, features: int = CHUNK_FEATURES) -> Iterator[str]:
+def geojson_chunks(tset: TrajectorySet, *, features: int = CHUNK_FEATURES,
+                   states: int = CHUNK_STATES) -> Iterator[str]:
     """``trajectories.geojson`` as text chunks: the compact JSON of
-    :func:`trajectories_geojson` and a newline, ``features`` features at a time.
+    :func:`trajectories_geojson` and a newline, at most ``features`` features
+    or about ``states`` positions at a time.
     """
-    ts = tset.trajectories
     yield '{"type":"FeatureCollection","features":['
-    for k in range(0, len(ts), features):
-        text = ",".join(json.dumps(_feature(tset.frame, t), separators=(",", ":"))
-                        for t in ts[k : k + features])
-        yield text if k == 0 else "," + text
+    parts: list[str] = []
+    held = 0
+    first = True
+    for t in tset.trajectories:
+        parts.append(json.dumps(_feature(tset.frame, t), separators=(",", ":")))
+        held += int(t.time.size)
+        if len(parts) >= features or held >= states:
+            text = ",".join(parts)
+            yield text if first else "," + text
+            parts, held, first = [], 0, False
+    if parts:
+        text = ",".join(parts)
+        yield text if first else "," + text
     yield "]}\n"
