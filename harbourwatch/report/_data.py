@@ -220,35 +220,31 @@ def zone_visits(ts: TrajectorySet, zones: Sequence[ZoneConfig],
 
     A visit starts at the first state inside and ends at the last state
     inside of a run (state resolution, no interpolation of the crossing).
+    One trajectory's positions at a time (each is tested against every zone).
     """
-    pts: dict[str, Array] = {}
+    wanted = [z for z in zones if z.kind_key != "land"]
+    for z in wanted:
+        shapely.prepare(z.geometry)
+    found: list[tuple[list[str], list[float], list[float]]] = [([], [], []) for _ in wanted]
     for tr in ts.trajectories:
         if latlon is not None and tr.id in latlon:
-            pts[tr.id] = latlon[tr.id]
+            ll = latlon[tr.id]
         else:
             lat, lon = ts.frame.to_wgs84(tr.mean[:, 0], tr.mean[:, 2])
-            pts[tr.id] = np.column_stack([lat, lon])
-    out: list[ZoneVisits] = []
-    for z in zones:
-        if z.kind_key == "land":
-            continue
-        shapely.prepare(z.geometry)
-        tracks: list[str] = []
-        starts: list[float] = []
-        ends: list[float] = []
-        for tr in ts.trajectories:
-            ll = pts[tr.id]
+            ll = np.column_stack([lat, lon])
+        for z, (tracks, starts, ends) in zip(wanted, found, strict=True):
             inside = shapely.contains_xy(z.geometry, ll[:, 1], ll[:, 0])
             if not inside.any():
                 continue
             edges = np.diff(np.concatenate([[0], inside.astype(np.int8), [0]]))
+            t = tr.time
             for a, b in zip(np.flatnonzero(edges == 1), np.flatnonzero(edges == -1) - 1,
                             strict=True):
                 tracks.append(tr.id)
-                starts.append(float(tr.time[a]))
-                ends.append(float(tr.time[b]))
-        out.append(ZoneVisits(z, tuple(tracks), tuple(starts), tuple(ends)))
-    return out
+                starts.append(float(t[a]))
+                ends.append(float(t[b]))
+    return [ZoneVisits(z, tuple(tracks), tuple(starts), tuple(ends))
+            for z, (tracks, starts, ends) in zip(wanted, found, strict=True)]
 
 
 def vessels_present(ts: TrajectorySet, step_s: float = 60.0,
