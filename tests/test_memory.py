@@ -185,6 +185,37 @@ def test_a_spilled_trajectory_is_the_trajectory(rng):
     assert "".join(geojson_chunks(sp)) == "".join(geojson_chunks(ts))
 
 
+def test_a_held_spilled_trajectory_reads_each_array_once(monkeypatch):
+    ts = _set(5, sized=False)
+    store = SpillStore(cache_bytes=0)
+    sp = _spilled_copy(ts, store)
+    reads: list[int] = []
+    get = store.get
+    monkeypatch.setattr(store, "get", lambda key: (reads.append(key), get(key))[1])
+    plain, tr = ts.trajectories[0], sp.trajectories[0]
+    held = tr.held()  # type: ignore[attr-defined]
+    for _ in range(3):
+        for name in SPILLED_ARRAYS:
+            assert np.array_equal(getattr(held, name), getattr(plain, name)), name
+    assert sorted(reads) == [tr.key + k for k in range(len(SPILLED_ARRAYS))]  # once each
+    reads.clear()
+    for _ in range(2):
+        tr.mean  # noqa: B018  (not held: read every time, nothing kept)
+    assert reads == [tr.key + 1] * 2
+
+
+def test_rules_over_spilled_trajectories_give_the_same_alerts():
+    from harbourwatch.rules.evaluate import evaluate_rules
+    from tests.test_rules import RULES, ZONES, build_scenario, tset  # every kind of alert
+
+    ts = tset([v.traj for v in build_scenario(11).values()])
+    store = SpillStore(cache_bytes=0)
+    want = evaluate_rules(ts, ZONES, RULES, seed=7)
+    assert {a.kind for a in want} >= {"loiter", "pass-through", "speed", "rendezvous"}
+    got = evaluate_rules(_spilled_copy(ts, store), ZONES, RULES, seed=7)
+    assert got == want
+
+
 def test_the_filter_with_a_spill_store_gives_the_same_trajectories():
     from harbourwatch.filter import run_filter
     from harbourwatch.io.records import FilterSettings

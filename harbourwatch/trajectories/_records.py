@@ -143,7 +143,13 @@ SPILLED_ARRAYS = ("time", "mean", "cov", "filt_mean", "filt_cov", "pred_mean", "
 
 def _spilled(k: int) -> Any:
     def read(self: SpilledTrajectory) -> Any:
-        return self.store.get(self.key + k)[0]
+        memo = self._memo
+        if memo is None:
+            return self.store.get(self.key + k)[0]
+        a = memo.get(k)
+        if a is None:
+            a = memo[k] = self.store.get(self.key + k)[0]
+        return a
 
     read.__doc__ = f"``{SPILLED_ARRAYS[k]}``, read back from the spill store."
     return property(read)
@@ -166,17 +172,31 @@ class SpilledTrajectory(Trajectory):
 
     store: SpillStore
     key: int
+    _memo: dict[int, Any] | None
 
     def __init__(self, *, id: str, store: SpillStore, key: int, existence: float,
                  end_probability: float = 1.0, alive_at_end: bool = False,
                  extent: tuple[float, ...] | None = None) -> None:
         for name, value in (("id", id), ("store", store), ("key", key), ("existence", existence),
                             ("end_probability", end_probability), ("alive_at_end", alive_at_end),
-                            ("extent", extent)):
+                            ("extent", extent), ("_memo", None)):
             object.__setattr__(self, name, value)
 
     def __repr__(self) -> str:
         return f"SpilledTrajectory(id={self.id!r}, key={self.key})"
+
+    def held(self) -> SpilledTrajectory:
+        """A copy that keeps each array once read (until the copy is dropped).
+
+        For a reader that uses one trajectory's arrays many times in a row
+        (every rule over it): the store is read once per array, whatever the
+        size of its cache, and nothing stays once the copy is gone.
+        """
+        copy = SpilledTrajectory(id=self.id, store=self.store, key=self.key,
+                                 existence=self.existence, end_probability=self.end_probability,
+                                 alive_at_end=self.alive_at_end, extent=self.extent)
+        object.__setattr__(copy, "_memo", {})
+        return copy
 
     time = _spilled(0)
     mean = _spilled(1)
