@@ -19,7 +19,7 @@ from numpy.typing import NDArray
 from harbourwatch.io.feeds import Scan
 from harbourwatch.io.records import SensorConfig, ZoneConfig
 from harbourwatch.report._hull import encode_headings, true_headings
-from harbourwatch.trajectories import Trajectory, TrajectorySet
+from harbourwatch.trajectories import Trajectory, TrajectorySet, held
 
 __all__ = [
     "SIMPLIFY_TOLERANCE_M",
@@ -113,7 +113,7 @@ def replay_payload(ts: TrajectorySet, step: float | None = None) -> dict[str, ob
     t0 = ts.feed_start
     step = replay_step(ts) if step is None else step
     hind: list[dict[str, object]] = []
-    for tr in ts.trajectories:
+    for tr in map(held, ts.trajectories):
         k0 = int(np.ceil((tr.start - t0) / step - 1e-9))
         k1 = int(np.floor((tr.end - t0) / step + 1e-9))
         ks = np.arange(k0, k1 + 1, dtype=np.int64)
@@ -226,7 +226,7 @@ def zone_visits(ts: TrajectorySet, zones: Sequence[ZoneConfig],
     for z in wanted:
         shapely.prepare(z.geometry)
     found: list[tuple[list[str], list[float], list[float]]] = [([], [], []) for _ in wanted]
-    for tr in ts.trajectories:
+    for tr in map(held, ts.trajectories):
         if latlon is not None and tr.id in latlon:
             ll = latlon[tr.id]
         else:

@@ -16,6 +16,7 @@ from harbourwatch.trajectories._records import (
     SpilledAsSeenTable,
     SpilledTrajectory,
     Trajectory,
+    held,
 )
 from harbourwatch.trajectories._set import (
     AS_SEEN_COLUMNS,
@@ -34,6 +35,7 @@ __all__ = [
     "Trajectory",
     "SpilledTrajectory",
     "SpilledAsSeenTable",
+    "held",
     "TrajectorySet",
     "AsSeenTable",
     "tracks_csv_text",

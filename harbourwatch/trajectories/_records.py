@@ -19,7 +19,7 @@ from numpy.typing import NDArray
 from harbourwatch.io.spill import SpillStore
 from harbourwatch.models.gaussian import ffbs_sample
 
-__all__ = ["Trajectory", "SpilledTrajectory", "AsSeenTable", "SpilledAsSeenTable",
+__all__ = ["Trajectory", "SpilledTrajectory", "AsSeenTable", "SpilledAsSeenTable", "held",
            "SPILLED_ARRAYS", "AS_SEEN_BLOCK_ROWS"]
 
 Array = NDArray[np.float64]
@@ -207,6 +207,15 @@ class SpilledTrajectory(Trajectory):
     pred_cov = _spilled(6)
     plot_ids = _spilled(7)
     sensor_ids = _spilled(8)
+
+
+def held(traj: Trajectory) -> Trajectory:
+    """``traj``, or for a spilled one a copy that reads each array once (:meth:`SpilledTrajectory.held`).
+
+    For a reader that goes through the trajectories one at a time and uses
+    each one's arrays several times.
+    """
+    return traj.held() if isinstance(traj, SpilledTrajectory) else traj
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)

@@ -18,7 +18,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from harbourwatch.scene.geodesy import LocalFrame
-from harbourwatch.trajectories._records import AsSeenTable, Trajectory
+from harbourwatch.trajectories._records import AsSeenTable, Trajectory, held
 from harbourwatch.units import KNOT_M_S
 
 __all__ = [
@@ -128,7 +128,7 @@ def _row_blocks(ts: tuple[Trajectory, ...], rows: int) -> Iterator[list[tuple[Tr
     """Consecutive ``(trajectory, first, stop)`` state ranges of at most ``rows`` rows in all."""
     block: list[tuple[Trajectory, int, int]] = []
     room = rows
-    for t in ts:
+    for t in map(held, ts):  # each array of a spilled trajectory read once
         n = int(t.time.size)
         i = 0
         while i < n:
@@ -322,15 +322,15 @@ def geojson_chunks(tset: TrajectorySet, *, features: int = CHUNK_FEATURES,
     """
     yield '{"type":"FeatureCollection","features":['
     parts: list[str] = []
-    held = 0
+    positions = 0
     first = True
-    for t in tset.trajectories:
+    for t in map(held, tset.trajectories):
         parts.append(json.dumps(_feature(tset.frame, t), separators=(",", ":")))
-        held += int(t.time.size)
-        if len(parts) >= features or held >= states:
+        positions += int(t.time.size)
+        if len(parts) >= features or positions >= states:
             text = ",".join(parts)
             yield text if first else "," + text
-            parts, held, first = [], 0, False
+            parts, positions, first = [], 0, False
     if parts:
         text = ",".join(parts)
         yield text if first else "," + text
