@@ -66,7 +66,7 @@ class SpillStore:
         """The user-facing error of a temporary file that cannot be written."""
         why = exc.strerror or str(exc)
         return OutputError(f"{why} in the temporary folder {self._folder} (set TMPDIR to a folder "
-                           "with room; a run needs about 45 MB there per busy feed hour)",
+                           "with room; a run needs about 65 MB there per busy feed hour)",
                            path=os.path.join(self._folder, "harbourwatch-spill-* (unlinked)"))
 
     def put(self, arrays: Sequence[NDArray[Any]]) -> int:
