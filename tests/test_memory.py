@@ -292,6 +292,22 @@ def test_as_seen_log_in_blocks_gives_the_one_piece_table(monkeypatch, spilled):
     assert table.sized == bool(np.isfinite(ref["length"]).any())
 
 
+def test_as_seen_rows_out_of_time_order_are_sorted_in_one_piece(monkeypatch):
+    from harbourwatch.filter import _estimate
+
+    monkeypatch.setattr(_estimate, "AS_SEEN_BLOCK", 2)
+    rows = [_estimate.AsSeenRows(time=T0 + t, bids=np.array([b], np.int64), mean=np.zeros((1, 4)),
+                                 sd=np.ones(1), existence=np.ones(1), length=np.full(1, np.nan))
+            for t, b in ((5.0, 1), (7.0, 2), (6.0, 3), (1.0, 4))]  # not in time order
+    log = _estimate.AsSeenLog(SpillStore())
+    for r in rows:
+        log.append(r)
+    table = log.table({})
+    assert not isinstance(table, SpilledAsSeenTable)  # the block-wise sort would be wrong
+    assert table.time.tolist() == [T0 + 1.0, T0 + 5.0, T0 + 6.0, T0 + 7.0]
+    assert table.track.tolist() == ["P4", "P1", "P3", "P2"]
+
+
 def _spilled_as_seen(a: AsSeenTable, store: SpillStore, block: int) -> SpilledAsSeenTable:
     """``a`` written to ``store`` in groups of ``block`` rows (as the filter leaves it)."""
     names = np.unique(a.track)
