@@ -97,7 +97,7 @@ def _write_trajectory_tables(out_dir: Path, tset: TrajectorySet, progress: Callb
     """
     t = time.perf_counter()
     n_tracks = sum(int(tr.time.size) for tr in tset)
-    n_seen = int(tset.as_seen.time.size)
+    n_seen = tset.as_seen.rows
     total = n_tracks + n_seen + len(tset)
     progress(0, total)
     atomic_write_chunks(out_dir / "tracks.csv", tracks_csv_chunks(tset))

@@ -13,6 +13,7 @@ from harbourwatch.io.spill import SpillStore
 from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.trajectories import (
     AsSeenTable,
+    SpilledAsSeenTable,
     SpilledTrajectory,
     Trajectory,
     TrajectorySet,
@@ -72,6 +73,10 @@ def test_streamed_tables_are_the_bytes_of_the_whole_texts(sized):
     one_text = json.dumps(trajectories_geojson(ts), separators=(",", ":")) + "\n"
     for features in (1, 2, 100):
         assert "".join(geojson_chunks(ts, features=features)) == one_text
+    for states in (1, 30, 10**6):  # a chunk ends at a number of positions too
+        chunks = list(geojson_chunks(ts, states=states))
+        assert "".join(chunks) == one_text
+        assert (len(chunks) == 2 + len(ts)) is (states == 1)
 
 
 def test_streamed_tables_of_an_empty_set():
@@ -180,6 +185,37 @@ def test_a_spilled_trajectory_is_the_trajectory(rng):
     assert "".join(geojson_chunks(sp)) == "".join(geojson_chunks(ts))
 
 
+def test_a_held_spilled_trajectory_reads_each_array_once(monkeypatch):
+    ts = _set(5, sized=False)
+    store = SpillStore(cache_bytes=0)
+    sp = _spilled_copy(ts, store)
+    reads: list[int] = []
+    get = store.get
+    monkeypatch.setattr(store, "get", lambda key: (reads.append(key), get(key))[1])
+    plain, tr = ts.trajectories[0], sp.trajectories[0]
+    held = tr.held()  # type: ignore[attr-defined]
+    for _ in range(3):
+        for name in SPILLED_ARRAYS:
+            assert np.array_equal(getattr(held, name), getattr(plain, name)), name
+    assert sorted(reads) == [tr.key + k for k in range(len(SPILLED_ARRAYS))]  # once each
+    reads.clear()
+    for _ in range(2):
+        tr.mean  # noqa: B018  (not held: read every time, nothing kept)
+    assert reads == [tr.key + 1] * 2
+
+
+def test_rules_over_spilled_trajectories_give_the_same_alerts():
+    from harbourwatch.rules.evaluate import evaluate_rules
+    from tests.test_rules import RULES, ZONES, build_scenario, tset  # every kind of alert
+
+    ts = tset([v.traj for v in build_scenario(11).values()])
+    store = SpillStore(cache_bytes=0)
+    want = evaluate_rules(ts, ZONES, RULES, seed=7)
+    assert {a.kind for a in want} >= {"loiter", "pass-through", "speed", "rendezvous"}
+    got = evaluate_rules(_spilled_copy(ts, store), ZONES, RULES, seed=7)
+    assert got == want
+
+
 def test_the_filter_with_a_spill_store_gives_the_same_trajectories():
     from harbourwatch.filter import run_filter
     from harbourwatch.io.records import FilterSettings
@@ -240,11 +276,62 @@ def test_as_seen_log_in_blocks_gives_the_one_piece_table(monkeypatch, spilled):
     for r in rows:
         log.append(r)
     table = log.table(ids)
+    assert isinstance(table, SpilledAsSeenTable) is spilled  # on disk when there is a store
     ref = _as_seen_reference(rows, ids)
-    assert log.rows == ref["time"].size
+    assert log.rows == ref["time"].size == table.rows
     for name, want in ref.items():
         assert np.array_equal(getattr(table, name), want, equal_nan=name == "length"), name
     assert table.track.dtype.itemsize < np.dtype("<U16").itemsize  # as wide as the longest id
+    # read block by block, the rows are the same rows in the same order
+    for rows_per_block in (5, 1 << 16):
+        got = list(table.blocks(rows_per_block))
+        assert max(b.rows for b in got) <= rows_per_block
+        for name, want in ref.items():
+            joined = np.concatenate([getattr(b, name) for b in got])
+            assert np.array_equal(joined, want, equal_nan=name == "length"), name
+    assert table.sized == bool(np.isfinite(ref["length"]).any())
+
+
+def test_as_seen_rows_out_of_time_order_are_sorted_in_one_piece(monkeypatch):
+    from harbourwatch.filter import _estimate
+
+    monkeypatch.setattr(_estimate, "AS_SEEN_BLOCK", 2)
+    rows = [_estimate.AsSeenRows(time=T0 + t, bids=np.array([b], np.int64), mean=np.zeros((1, 4)),
+                                 sd=np.ones(1), existence=np.ones(1), length=np.full(1, np.nan))
+            for t, b in ((5.0, 1), (7.0, 2), (6.0, 3), (1.0, 4))]  # not in time order
+    log = _estimate.AsSeenLog(SpillStore())
+    for r in rows:
+        log.append(r)
+    table = log.table({})
+    assert not isinstance(table, SpilledAsSeenTable)  # the block-wise sort would be wrong
+    assert table.time.tolist() == [T0 + 1.0, T0 + 5.0, T0 + 6.0, T0 + 7.0]
+    assert table.track.tolist() == ["P4", "P1", "P3", "P2"]
+
+
+def _spilled_as_seen(a: AsSeenTable, store: SpillStore, block: int) -> SpilledAsSeenTable:
+    """``a`` written to ``store`` in groups of ``block`` rows (as the filter leaves it)."""
+    names = np.unique(a.track)
+    code = np.searchsorted(names, a.track).astype(np.int32)
+    length = a.length if a.length is not None else np.full(a.rows, np.nan)
+    keys = tuple(store.put([a.time[i:i + block], code[i:i + block], a.mean[i:i + block],
+                            a.sd[i:i + block], a.existence[i:i + block], length[i:i + block]])
+                 for i in range(0, a.rows, block))
+    return SpilledAsSeenTable(store=store, keys=keys, names=names, rows=a.rows, sized=a.sized)
+
+
+@pytest.mark.parametrize("sized", [False, True])
+def test_a_spilled_as_seen_table_gives_the_same_csv_and_replay(sized):
+    from harbourwatch.report._data import replay_payload
+
+    ts = _set(4, sized)
+    with SpillStore(cache_bytes=0) as store:
+        spilled = TrajectorySet(trajectories=ts.trajectories, frame=ts.frame,
+                                as_seen=_spilled_as_seen(ts.as_seen, store, 4),
+                                feed_start=ts.feed_start, feed_end=ts.feed_end)
+        assert "".join(as_seen_csv_chunks(spilled)) == "".join(as_seen_csv_chunks(ts))
+        want = replay_payload(ts)
+        assert want["as_seen"]  # the case has as-seen rows to replay
+        assert json.dumps(replay_payload(spilled)) == json.dumps(want)
 
 
 def test_a_full_temporary_folder_is_an_output_error_naming_it(tmp_path, monkeypatch):

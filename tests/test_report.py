@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import html
+import json
 import re
 from html.parser import HTMLParser
 from pathlib import Path
@@ -462,3 +463,34 @@ def test_user_strings_are_isolated_from_the_sentence_around_them(tmp_path: Path)
     narr = re.search(r'<p class="hw-narrative" id="hw-narrative">(.*?)</p>', incident, re.S)
     assert narr is not None and f"<bdi>{RTL_ZONE}</bdi>" in narr.group(1)
     assert seen_inside >= 4
+
+
+def test_replay_of_a_long_feed_keeps_within_its_position_budget(tmp_path: Path,
+                                                                 monkeypatch: pytest.MonkeyPatch) -> None:
+    from harbourwatch.report import overview
+    from harbourwatch.report._data import REPLAY_MAX_POSITIONS, replay_step
+
+    inp = make_inputs(hours=3.0)
+    ts = inp.trajectories
+
+    def positions(pay: dict[str, object]) -> int:
+        return sum(len(e["p"]) // 3 for e in pay["hindsight"])  # type: ignore[attr-defined]
+
+    full = positions(replay_payload(ts, REPLAY_STEP_S))
+    assert replay_step(ts) == REPLAY_STEP_S  # a short feed: within the default budget
+    assert full < REPLAY_MAX_POSITIONS
+    budget = full // 4
+    step = replay_step(ts, max_positions=budget)
+    assert step % REPLAY_STEP_S == 0 and 4 <= step / REPLAY_STEP_S <= 5  # a whole multiple
+    pay = replay_payload(ts, step)
+    assert positions(pay) <= budget + 2 * len(ts)  # about the budget (each track's ends kept)
+    for enc in pay["hindsight"]:  # type: ignore[union-attr]
+        t = np.cumsum(np.asarray(enc["p"], np.int64).reshape(-1, 3), axis=0)[:, 0]
+        assert np.all(np.diff(t) <= step + 1e-9)
+    # the page says the coarser step, and carries it to the replay script
+    monkeypatch.setattr(overview, "replay_step", lambda t: replay_step(t, max_positions=budget))
+    write_reports(tmp_path, inp)
+    html = (tmp_path / "report.html").read_text(encoding="utf-8")
+    assert f"resampled to {step:g} s" in html and f"steps of {step:g} s (a long feed" in html
+    data = re.search(r'id="hw-replay-data">(.*?)</script>', html, re.S)
+    assert data is not None and json.loads(data.group(1))["step"] == step

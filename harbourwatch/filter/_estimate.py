@@ -26,7 +26,12 @@ from harbourwatch.filter.output import FilterOutput
 from harbourwatch.io.records import FilterSettings
 from harbourwatch.io.spill import SpillStore
 from harbourwatch.models.extent import hull_length
-from harbourwatch.trajectories import AsSeenTable, SpilledTrajectory, Trajectory
+from harbourwatch.trajectories import (
+    AsSeenTable,
+    SpilledAsSeenTable,
+    SpilledTrajectory,
+    Trajectory,
+)
 
 if TYPE_CHECKING:
     from harbourwatch.filter.tpmbm import _Filter
@@ -104,10 +109,16 @@ class AsSeenLog:
         """The rows as a table sorted by (time, track), Bernoulli ``b`` named ``ids[b]`` or ``P<b>``.
 
         The order of Bernoullis within a scan follows the order of the plots in
-        the input, which must not show in any output. Built in two passes over
-        the blocks (the keys, then each value column scattered into place), so
-        that only the final columns and a few index arrays exist at once.
+        the input, which must not show in any output. With a spill store the
+        table stays on disk (:meth:`_spilled_table`); without one it is built
+        in memory in two passes over the blocks (the keys, then each value
+        column scattered into place), so that only the final columns and a
+        few index arrays exist at once.
         """
+        if self.spill is not None:
+            spilled = self._spilled_table(ids, self.spill)
+            if spilled is not None:
+                return spilled
         tt = np.concatenate([b[0] for b in self.blocks()])
         uniq, inv = np.unique(np.concatenate([b[1] for b in self.blocks()]), return_inverse=True)
         names = np.array([ids.get(int(b), f"P{int(b)}") for b in uniq.tolist()])
@@ -130,6 +141,45 @@ class AsSeenLog:
             k += n
         return AsSeenTable(time=time, track=track, mean=out[0], sd=out[1], existence=out[2],
                            length=out[3])
+
+    def _spilled_table(self, ids: dict[int, str], store: SpillStore) -> SpilledAsSeenTable | None:
+        """The sorted table written to ``store`` block by block (``None``: times out of order).
+
+        The rows are recorded scan by scan in time order, so sorting each
+        block by (time, track) sorts the whole table, but for the rows of a
+        block's last time, which the next block may continue: they are
+        carried over into it (a stable sort keeps the order of recording
+        among equal keys, as the one-piece sort does). Memory: one block and
+        the names, at any length of feed.
+        """
+        uniq = np.zeros(0, np.int64)
+        for b in self.blocks():
+            uniq = np.union1d(uniq, b[1])
+        names = np.array([ids.get(int(b), f"P{int(b)}") for b in uniq.tolist()])
+        by_name = np.argsort(names, kind="stable")
+        rank = np.empty(by_name.size, np.int32)
+        rank[by_name] = np.arange(by_name.size, dtype=np.int32)  # code of each bid: its name's rank
+        keys: list[int] = []
+        carry: list[NDArray[Any]] | None = None
+        sized = False
+        for b in self.blocks():
+            cols = [b[0], rank[np.searchsorted(uniq, b[1])], *b[2:]]
+            if carry is not None:
+                cols = [np.concatenate([c, x]) for c, x in zip(carry, cols, strict=True)]
+            if cols[0].size > 1 and bool((np.diff(cols[0]) < 0).any()):
+                return None  # not recorded in time order: sorted in one piece instead
+            order = np.lexsort((cols[1], cols[0]))
+            cols = [c[order] for c in cols]
+            cut = int(np.searchsorted(cols[0], cols[0][-1], "left"))
+            if cut:
+                keys.append(store.put([c[:cut] for c in cols]))
+                sized = sized or bool(np.isfinite(cols[5][:cut]).any())
+            carry = [c[cut:] for c in cols]
+        if carry is not None and carry[0].size:
+            keys.append(store.put(carry))
+            sized = sized or bool(np.isfinite(carry[5]).any())
+        return SpilledAsSeenTable(store=store, keys=tuple(keys), names=names[by_name],
+                                  rows=self.rows, sized=sized)
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -259,8 +309,9 @@ def build_output(end: FilterEnd) -> FilterOutput:
     st = end.settings
     nodes = end.nodes
     chosen = list(end.finished)
-    for c in end.clusters:
-        chosen.extend(cluster_pieces(c, nodes, st, end.last_time))
+    for c in end.clusters:  # spilled at once too: one cluster's arrays in memory at a time
+        done = cluster_pieces(c, nodes, st, end.last_time)
+        chosen.extend(done if end.spill is None else [spill_piece(p, end.spill) for p in done])
     chosen.sort(key=lambda x: (x.start, x.east, x.bid))
     n_nodes = nodes.n
     nodes.release()  # every chain is copied into ``chosen``: room for the as-seen table

@@ -29,7 +29,10 @@ from harbourwatch.io.columns import ScratchFile
 __all__ = ["SpillStore", "CACHE_BYTES"]
 
 #: Bytes of recently read groups kept in memory (a trajectory read again soon costs nothing).
-CACHE_BYTES = 128 << 20
+#: Its readers go through the trajectories one at a time, each reading a few arrays of the
+#: trajectory at hand several times: room for the largest trajectory's few arrays is enough
+#: (all nine arrays of a day-long trajectory are about 12 MB).
+CACHE_BYTES = 32 << 20
 
 
 class SpillStore:
@@ -45,7 +48,7 @@ class SpillStore:
 
     def __init__(self, *, cache_bytes: int = CACHE_BYTES, folder: str | None = None) -> None:
         self._file = ScratchFile(folder, prefix="harbourwatch-spill-",
-                                 room="a run needs about 45 MB there per busy feed hour")
+                                 room="a run needs about 65 MB there per busy feed hour")
         self._lock = threading.Lock()
         self._index: list[tuple[int, tuple[tuple[str, tuple[int, ...]], ...], int]] = []
         self._cache: OrderedDict[int, tuple[NDArray[Any], ...]] = OrderedDict()

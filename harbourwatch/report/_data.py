@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import shapely
@@ -18,11 +19,13 @@ from numpy.typing import NDArray
 from harbourwatch.io.feeds import Scan
 from harbourwatch.io.records import SensorConfig, ZoneConfig
 from harbourwatch.report._hull import encode_headings, true_headings
-from harbourwatch.trajectories import Trajectory, TrajectorySet
+from harbourwatch.trajectories import Trajectory, TrajectorySet, held
 
 __all__ = [
     "SIMPLIFY_TOLERANCE_M",
     "REPLAY_STEP_S",
+    "REPLAY_MAX_POSITIONS",
+    "replay_step",
     "TRAIL_S",
     "GAP_SCAN_PERIODS",
     "track_latlon",
@@ -39,6 +42,12 @@ __all__ = [
 SIMPLIFY_TOLERANCE_M = 5.0
 #: Time step of the replay data, seconds.
 REPLAY_STEP_S = 10.0
+#: Most positions of the overview's hindsight replay at :data:`REPLAY_STEP_S` (a day of a
+#: busy harbour: about 350,000). A longer feed is replayed in coarser steps, the smallest
+#: whole multiple of :data:`REPLAY_STEP_S` that keeps within it (the as-seen replay takes
+#: the same steps), so that the page and the memory to build it stay bounded at any length
+#: of feed; the tables keep every state.
+REPLAY_MAX_POSITIONS = 600_000
 #: Length of the replay trail behind each vessel marker, seconds.
 TRAIL_S = 300.0
 #: A radar with no scan for more than this many scan periods is shown as out.
@@ -66,15 +75,28 @@ def _encode(step: NDArray[np.int64], lat: Array, lon: Array) -> list[int]:
     return [int(v) for v in d.ravel()]
 
 
-def replay_payload(ts: TrajectorySet) -> dict[str, object]:
+def replay_step(ts: TrajectorySet, max_positions: int = REPLAY_MAX_POSITIONS) -> float:
+    """The replay's time step: :data:`REPLAY_STEP_S`, or the smallest whole multiple of it
+    that keeps the hindsight replay within about ``max_positions`` positions."""
+    t0, step = ts.feed_start, REPLAY_STEP_S
+    n = 0
+    for tr in ts.trajectories:
+        k0 = int(np.ceil((tr.start - t0) / step - 1e-9))
+        k1 = int(np.floor((tr.end - t0) / step + 1e-9))
+        n += max(k1 - k0 + 1, 0) + 2  # the grid inside its span, its first and last state
+    return step * max(1, int(np.ceil(n / max(max_positions, 1))))
+
+
+def replay_payload(ts: TrajectorySet, step: float | None = None) -> dict[str, object]:
     """Compact replay data: per track, delta-encoded ``[t_s, lat_e5, lon_e5]`` triples.
 
     ``t_s`` is whole seconds since ``feed_start``; ``lat_e5``/``lon_e5`` are
     degrees times 1e5 rounded. The first triple is absolute, each later one
     the difference to the previous.
 
-    ``hindsight`` holds the smoothed tracks linearly interpolated to the
-    :data:`REPLAY_STEP_S` grid (from ``feed_start``) inside each track's span.
+    ``hindsight`` holds the smoothed tracks linearly interpolated to a grid
+    of ``step`` seconds (from ``feed_start``; default :func:`replay_step`)
+    inside each track's span.
     ``as_seen`` holds, per track id, the last as-seen estimate in each grid
     step (no interpolation; the page does not join points further apart
     than ``max_gap`` seconds). Coordinates are kept to 5 decimals (about 1 m).
@@ -89,9 +111,9 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
     beam-to-length ratio.
     """
     t0 = ts.feed_start
-    step = REPLAY_STEP_S
+    step = replay_step(ts) if step is None else step
     hind: list[dict[str, object]] = []
-    for tr in ts.trajectories:
+    for tr in map(held, ts.trajectories):
         k0 = int(np.ceil((tr.start - t0) / step - 1e-9))
         k1 = int(np.floor((tr.end - t0) / step + 1e-9))
         ks = np.arange(k0, k1 + 1, dtype=np.int64)
@@ -113,25 +135,6 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
             entry["hull"] = [round(sz[0], 1), round(sz[1], 1)]
             entry["h"] = encode_headings(hd)
         hind.append(entry)
-    seen: list[dict[str, object]] = []
-    a = ts.as_seen
-    sized = {tr.id: tr for tr in ts.trajectories if tr.size is not None}
-    if a.time.size:
-        e_all, n_all = a.mean[:, 0], a.mean[:, 2]
-        lat_all, lon_all = ts.frame.to_wgs84(e_all, n_all)
-        kstep = np.floor((a.time - t0) / step + 1e-9).astype(np.int64)
-        ids = np.asarray(a.track).astype(str)
-        for tid in sorted(set(ids.tolist())):
-            rows = np.flatnonzero(ids == tid)
-            rows = rows[np.argsort(a.time[rows], kind="stable")]
-            k = kstep[rows]
-            last = np.concatenate([k[1:] != k[:-1], [True]])  # last estimate in each step
-            r = rows[last]
-            entry = {"id": tid, "p": _encode(np.round(kstep[r] * step).astype(np.int64),
-                                             lat_all[r], lon_all[r])}
-            if tid in sized:
-                entry.update(_as_seen_hull(ts, sized[tid], r))
-            seen.append(entry)
     return {
         "t0": t0,
         "t1": ts.feed_end,
@@ -139,20 +142,58 @@ def replay_payload(ts: TrajectorySet) -> dict[str, object]:
         "trail": TRAIL_S,
         "max_gap": AS_SEEN_MAX_GAP_STEPS * step,
         "hindsight": hind,
-        "as_seen": seen,
+        "as_seen": _as_seen_payload(ts, step),
     }
 
 
-def _as_seen_hull(ts: TrajectorySet, tr: Trajectory, rows: NDArray[np.int64]) -> dict[str, object]:
+def _last_in_step(k: NDArray[np.int64]) -> NDArray[np.bool_]:
+    """Rows (in time order) that are the last of their replay step."""
+    return np.concatenate([k[1:] != k[:-1], [True]])
+
+
+def _as_seen_payload(ts: TrajectorySet, step: float) -> list[dict[str, object]]:
+    """The ``as_seen`` part of :func:`replay_payload`, read one block of the table at a time.
+
+    The table is in time order, so each track's rows of a block are in time
+    order: keeping the last row of each step per block, then again over the
+    kept rows of all blocks, keeps the last row of each step. Only those
+    rows are held (a spilled table is never in memory whole).
+    """
+    t0 = ts.feed_start
+    sized = {tr.id: tr for tr in ts.trajectories if tr.extent is not None}
+    kept: dict[str, list[tuple[NDArray[Any], ...]]] = {}
+    for b in ts.as_seen.blocks():
+        lat, lon = ts.frame.to_wgs84(b.mean[:, 0], b.mean[:, 2])
+        kstep = np.floor((b.time - t0) / step + 1e-9).astype(np.int64)
+        ids, inv = np.unique(np.asarray(b.track).astype(str), return_inverse=True)
+        by_track = np.argsort(inv, kind="stable")  # each track's rows, in time order
+        cuts = np.searchsorted(inv[by_track], np.arange(ids.size + 1))
+        for g, tid in enumerate(ids.tolist()):
+            rows = by_track[cuts[g] : cuts[g + 1]]
+            r = rows[_last_in_step(kstep[rows])]
+            part: tuple[NDArray[Any], ...] = (kstep[r], lat[r], lon[r])
+            if tid in sized and b.length is not None:
+                part += (b.length[r], b.mean[r])
+            kept.setdefault(tid, []).append(part)
+    seen: list[dict[str, object]] = []
+    for tid in sorted(kept):
+        cols = [np.concatenate(c) for c in zip(*kept.pop(tid), strict=True)]
+        last = _last_in_step(cols[0])
+        cols = [c[last] for c in cols]
+        entry: dict[str, object] = {
+            "id": tid, "p": _encode(np.round(cols[0] * step).astype(np.int64), cols[1], cols[2])}
+        if len(cols) == 5:
+            entry.update(_as_seen_hull(ts, sized[tid], cols[3], cols[4]))
+        seen.append(entry)
+    return seen
+
+
+def _as_seen_hull(ts: TrajectorySet, tr: Trajectory, length: Array, m: Array) -> dict[str, object]:
     """As-seen outline fields of one vessel: the length as known then (0: not yet judged
     extended), the final estimate's beam-to-length ratio, headings from the filtered state."""
-    a, sz = ts.as_seen, tr.size
-    if a.length is None or sz is None:
+    sz = tr.size
+    if sz is None or not np.isfinite(length).any():
         return {}
-    length = a.length[rows]
-    if not np.isfinite(length).any():
-        return {}
-    m = a.mean[rows]
     hd, _ = true_headings(ts.frame, m[:, 0], m[:, 2], m[:, 1], m[:, 3], sz[2])
     whole = np.round(np.nan_to_num(length, nan=0.0)).astype(np.int64)
     return {"len": [int(v) for v in np.diff(whole, prepend=0)],
@@ -179,35 +220,31 @@ def zone_visits(ts: TrajectorySet, zones: Sequence[ZoneConfig],
 
     A visit starts at the first state inside and ends at the last state
     inside of a run (state resolution, no interpolation of the crossing).
+    One trajectory's positions at a time (each is tested against every zone).
     """
-    pts: dict[str, Array] = {}
-    for tr in ts.trajectories:
+    wanted = [z for z in zones if z.kind_key != "land"]
+    for z in wanted:
+        shapely.prepare(z.geometry)
+    found: list[tuple[list[str], list[float], list[float]]] = [([], [], []) for _ in wanted]
+    for tr in map(held, ts.trajectories):
         if latlon is not None and tr.id in latlon:
-            pts[tr.id] = latlon[tr.id]
+            ll = latlon[tr.id]
         else:
             lat, lon = ts.frame.to_wgs84(tr.mean[:, 0], tr.mean[:, 2])
-            pts[tr.id] = np.column_stack([lat, lon])
-    out: list[ZoneVisits] = []
-    for z in zones:
-        if z.kind_key == "land":
-            continue
-        shapely.prepare(z.geometry)
-        tracks: list[str] = []
-        starts: list[float] = []
-        ends: list[float] = []
-        for tr in ts.trajectories:
-            ll = pts[tr.id]
+            ll = np.column_stack([lat, lon])
+        for z, (tracks, starts, ends) in zip(wanted, found, strict=True):
             inside = shapely.contains_xy(z.geometry, ll[:, 1], ll[:, 0])
             if not inside.any():
                 continue
             edges = np.diff(np.concatenate([[0], inside.astype(np.int8), [0]]))
+            t = tr.time
             for a, b in zip(np.flatnonzero(edges == 1), np.flatnonzero(edges == -1) - 1,
                             strict=True):
                 tracks.append(tr.id)
-                starts.append(float(tr.time[a]))
-                ends.append(float(tr.time[b]))
-        out.append(ZoneVisits(z, tuple(tracks), tuple(starts), tuple(ends)))
-    return out
+                starts.append(float(t[a]))
+                ends.append(float(t[b]))
+    return [ZoneVisits(z, tuple(tracks), tuple(starts), tuple(ends))
+            for z, (tracks, starts, ends) in zip(wanted, found, strict=True)]
 
 
 def vessels_present(ts: TrajectorySet, step_s: float = 60.0,

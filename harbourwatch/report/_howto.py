@@ -63,8 +63,16 @@ HOW_TO_READ: tuple[tuple[str, str], ...] = (
 )
 
 
-def how_to_read() -> str:
-    """The section's HTML (our own text, escaped like any other)."""
-    items = "".join(f"<dt>{esc(k)}</dt><dd>{esc(v)}</dd>" for k, v in HOW_TO_READ)
+def how_to_read(replay_step_s: float = REPLAY_STEP_S) -> str:
+    """The section's HTML (our own text, escaped like any other).
+
+    ``replay_step_s`` is the replay's step when a long feed made it coarser
+    (:func:`~harbourwatch.report._data.replay_step`).
+    """
+    said = f"steps of {REPLAY_STEP_S:g} s."
+    longer = (f"steps of {replay_step_s:g} s (a long feed: the page would be too large at "
+              f"{REPLAY_STEP_S:g} s; the tables keep every state).")
+    items = "".join(f"<dt>{esc(k)}</dt><dd>{esc(v if replay_step_s == REPLAY_STEP_S else v.replace(said, longer))}</dd>"
+                    for k, v in HOW_TO_READ)
     return (f'<h2 id="how-to-read">How to read this report</h2>'
             f'<dl class="hw-howto">{items}</dl>')

@@ -20,6 +20,7 @@ from harbourwatch.report._data import ZoneVisits
 from harbourwatch.report._fmt import fmt_clock, fmt_day, fmt_distance
 from harbourwatch.report._html import esc, esc_user
 from harbourwatch.report._layers import track_status, zone_label
+from harbourwatch.trajectories import held
 from harbourwatch.units import KNOT_M_S, fmt_duration
 
 if TYPE_CHECKING:
@@ -53,7 +54,7 @@ def vessel_rows(inputs: ReportInputs, visits: Sequence[ZoneVisits]) -> list[Vess
         for tid in dict.fromkeys(v.track):
             by_track.setdefault(tid, []).append(v.zone.id)
     rows = []
-    for tr in inputs.trajectories.trajectories:
+    for tr in map(held, inputs.trajectories.trajectories):
         pos = tr.position
         steps = np.hypot(*np.diff(pos, axis=0).T) if pos.shape[0] > 1 else np.zeros(0)
         mine = [a for a in inputs.alerts if tr.id in (a.track, a.other_track)]

@@ -15,7 +15,9 @@ from harbourwatch.report._data import (
     REPLAY_STEP_S,
     SIMPLIFY_TOLERANCE_M,
     TRAIL_S,
+    ZoneVisits,
     replay_payload,
+    replay_step,
     scan_series,
     state_index,
     track_latlon,
@@ -204,7 +206,7 @@ def _alerts_table(inputs: ReportInputs) -> str:
     )
 
 
-def _traffic(inputs: ReportInputs) -> str:
+def _traffic(inputs: ReportInputs, visits: list[ZoneVisits]) -> str:
     ts = inputs.trajectories
     t0, t1 = ts.feed_start, ts.feed_end
     out = []
@@ -215,7 +217,6 @@ def _traffic(inputs: ReportInputs) -> str:
         title="Vessels present over time", y_label="vessels",
         caption="Vessels present: estimated trajectories spanning each minute of the shift.",
     ))
-    visits = zone_visits(ts, inputs.zones)
     if visits:
         out.append("<h3>Entries per zone</h3>")
         out.append(charts.bar_chart(
@@ -328,6 +329,8 @@ def overview_html(inputs: ReportInputs) -> str:
     tz = inputs.display_tz
     page = {"map": parts.name, "fit": round5(bounds)}
     scripts: tuple[str, ...]
+    step = REPLAY_STEP_S  # coarser for a long feed (replay_step)
+    visits = zone_visits(ts, inputs.zones)  # for the vessel list and the traffic charts
     if empty:
         day = "no plots in this feed"
         head = ("<h1>Shift review: no plots in this feed</h1>"
@@ -346,13 +349,14 @@ def overview_html(inputs: ReportInputs) -> str:
             f"({n_present} present at end, {len(ts) - n_present} departed) \u00b7 "
             f'{len(inputs.alerts)} alert(s) \u00b7 {len(inputs.plots)} plots from '
             f"{len(inputs.sensors)} radar(s)</p>")
-        payload = replay_payload(ts)
+        step = replay_step(ts)
+        payload = replay_payload(ts, step)
         payload["map"] = parts.name
         payload["tz"] = tz
         payload["day"] = day
         payload["alerts"] = _live_alerts(inputs)
         replay = _replay_controls(ts.feed_start, ts.feed_end, tz)
-        vrows = vessel_rows(inputs, zone_visits(ts, inputs.zones))
+        vrows = vessel_rows(inputs, visits)
         vessels = ('<section class="hw-noprint"><h2 id="vessels">Vessels</h2>'
                    f"{vessels_html(inputs, vrows)}</section>")
         day0 = float(np.floor(ts.feed_start / 86400.0) * 86400.0) - ts.feed_start
@@ -374,7 +378,7 @@ def overview_html(inputs: ReportInputs) -> str:
         f"{_legend(any(tr.extent is not None for tr in ts.trajectories))}{vessels}"
         f'<p class="hw-sub">Trajectories are smoothed estimates (using the whole shift), drawn '
         f"simplified to {SIMPLIFY_TOLERANCE_M:g} m; the replay is resampled to "
-        f"{REPLAY_STEP_S:g} s and shows a trail of the last few minutes. \u201cAs seen at the "
+        f"{step:g} s and shows a trail of the last few minutes. \u201cAs seen at the "
         "time\u201d shows the estimates that were available at each moment without hindsight. "
         "No basemap is drawn unless a tile server was configured; land is drawn from the "
         "zones file. Times are UTC"
@@ -382,8 +386,8 @@ def overview_html(inputs: ReportInputs) -> str:
         '<section class="hw-alerts-block"><h2 id="alerts">Alerts</h2>'
         f"{_alerts_table(inputs)}</section>"
         '<section class="hw-noprint"><h2 id="traffic">Traffic</h2>'
-        f"{'<p>No traffic: no plots in this feed.</p>' if empty else _traffic(inputs)}</section>"
-        f'<section class="hw-noprint">{how_to_read()}</section>'
+        f"{'<p>No traffic: no plots in this feed.</p>' if empty else _traffic(inputs, visits)}</section>"
+        f'<section class="hw-noprint">{how_to_read(step)}</section>'
         '<section class="hw-noprint"><h2 id="provenance">Run provenance</h2>'
         f"{provenance_html(dict(inputs.provenance))}</section>"
     )

@@ -65,7 +65,7 @@ from harbourwatch.rules.kinds import (
 from harbourwatch.rules.output import ALERT_COLUMNS, alerts_table, write_alerts_csv
 from harbourwatch.rules.size import size_probability
 from harbourwatch.scene.zones import LocalZone, local_zones
-from harbourwatch.trajectories import Trajectory, TrajectorySet
+from harbourwatch.trajectories import SpilledTrajectory, Trajectory, TrajectorySet
 
 __all__ = [
     "Alert",
@@ -396,7 +396,9 @@ def evaluate_rules(
     n_samples
         Joint draws per candidate window.
     progress
-        Called as ``progress(rules_done, rules_total)`` after each rule.
+        Called as ``progress(rules_done, rules_total)`` along the way (the
+        single-vessel rules are evaluated together, trajectory by trajectory:
+        they count as done in proportion to the trajectories gone through).
 
     Returns
     -------
@@ -411,16 +413,23 @@ def evaluate_rules(
         used = {r.zone for r in rules if r.zone is not None}
         local = local_zones([z for z in zones if z.id in used], trajectories.frame)
     trajs = sorted(trajectories.trajectories, key=lambda tr: tr.id)
+    kinds = [RULE_KINDS[rule.kind](rule, local.get(rule.zone) if rule.zone else None)
+             for rule in rules]
+    singles = [kind for kind in kinds if not kind.pairwise]
+    pairwise = [kind for kind in kinds if kind.pairwise]
+    total = len(kinds)
+    progress(0, total)
     alerts: list[Alert] = []
-    for k, rule in enumerate(rules):
-        progress(k, len(rules))
-        kind = RULE_KINDS[rule.kind](rule, local.get(rule.zone) if rule.zone else None)
-        if kind.pairwise:
-            for (i, j), bins in _pair_prefilter(kind, trajs).items():
-                alerts += _evaluate_pair(kind, trajs[i], trajs[j], bins, seed, n_samples)
-        else:
-            for tr in trajs:
-                alerts += _evaluate_single(kind, tr, seed, n_samples)
-    progress(len(rules), len(rules))
+    if singles:  # trajectory by trajectory: a spilled one is read once for all the rules
+        for k, tr in enumerate(trajs):
+            here = tr.held() if isinstance(tr, SpilledTrajectory) else tr
+            for kind in singles:
+                alerts += _evaluate_single(kind, here, seed, n_samples)
+            progress(len(singles) * (k + 1) // len(trajs), total)
+    for k, kind in enumerate(pairwise):
+        for (i, j), bins in _pair_prefilter(kind, trajs).items():
+            alerts += _evaluate_pair(kind, trajs[i], trajs[j], bins, seed, n_samples)
+        progress(len(singles) + k + 1, total)
+    progress(total, total)
     alerts.sort(key=lambda al: (al.start, al.rule, al.track, al.other_track))
     return alerts

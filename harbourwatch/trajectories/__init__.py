@@ -11,7 +11,13 @@ run's tables never exist as one text in memory.
 
 from __future__ import annotations
 
-from harbourwatch.trajectories._records import AsSeenTable, SpilledTrajectory, Trajectory
+from harbourwatch.trajectories._records import (
+    AsSeenTable,
+    SpilledAsSeenTable,
+    SpilledTrajectory,
+    Trajectory,
+    held,
+)
 from harbourwatch.trajectories._set import (
     AS_SEEN_COLUMNS,
     TRACK_COLUMNS,
@@ -28,6 +34,8 @@ from harbourwatch.trajectories._set import (
 __all__ = [
     "Trajectory",
     "SpilledTrajectory",
+    "SpilledAsSeenTable",
+    "held",
     "TrajectorySet",
     "AsSeenTable",
     "tracks_csv_text",

@@ -9,6 +9,7 @@ they could be known at each moment (:class:`AsSeenTable`).
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -18,7 +19,8 @@ from numpy.typing import NDArray
 from harbourwatch.io.spill import SpillStore
 from harbourwatch.models.gaussian import ffbs_sample
 
-__all__ = ["Trajectory", "SpilledTrajectory", "AsSeenTable", "SPILLED_ARRAYS"]
+__all__ = ["Trajectory", "SpilledTrajectory", "AsSeenTable", "SpilledAsSeenTable", "held",
+           "SPILLED_ARRAYS", "AS_SEEN_BLOCK_ROWS"]
 
 Array = NDArray[np.float64]
 
@@ -131,6 +133,9 @@ class Trajectory:
         )
 
 
+#: Rows of a piece of the as-seen table read at a time (about 8 MB of columns).
+AS_SEEN_BLOCK_ROWS = 1 << 16
+
 #: The per-state arrays of a trajectory, in the order a spilled trajectory stores them.
 SPILLED_ARRAYS = ("time", "mean", "cov", "filt_mean", "filt_cov", "pred_mean", "pred_cov",
                   "plot_ids", "sensor_ids")
@@ -138,7 +143,13 @@ SPILLED_ARRAYS = ("time", "mean", "cov", "filt_mean", "filt_cov", "pred_mean", "
 
 def _spilled(k: int) -> Any:
     def read(self: SpilledTrajectory) -> Any:
-        return self.store.get(self.key + k)[0]
+        memo = self._memo
+        if memo is None:
+            return self.store.get(self.key + k)[0]
+        a = memo.get(k)
+        if a is None:
+            a = memo[k] = self.store.get(self.key + k)[0]
+        return a
 
     read.__doc__ = f"``{SPILLED_ARRAYS[k]}``, read back from the spill store."
     return property(read)
@@ -161,17 +172,31 @@ class SpilledTrajectory(Trajectory):
 
     store: SpillStore
     key: int
+    _memo: dict[int, Any] | None
 
     def __init__(self, *, id: str, store: SpillStore, key: int, existence: float,
                  end_probability: float = 1.0, alive_at_end: bool = False,
                  extent: tuple[float, ...] | None = None) -> None:
         for name, value in (("id", id), ("store", store), ("key", key), ("existence", existence),
                             ("end_probability", end_probability), ("alive_at_end", alive_at_end),
-                            ("extent", extent)):
+                            ("extent", extent), ("_memo", None)):
             object.__setattr__(self, name, value)
 
     def __repr__(self) -> str:
         return f"SpilledTrajectory(id={self.id!r}, key={self.key})"
+
+    def held(self) -> SpilledTrajectory:
+        """A copy that keeps each array once read (until the copy is dropped).
+
+        For a reader that uses one trajectory's arrays many times in a row
+        (every rule over it): the store is read once per array, whatever the
+        size of its cache, and nothing stays once the copy is gone.
+        """
+        copy = SpilledTrajectory(id=self.id, store=self.store, key=self.key,
+                                 existence=self.existence, end_probability=self.end_probability,
+                                 alive_at_end=self.alive_at_end, extent=self.extent)
+        object.__setattr__(copy, "_memo", {})
+        return copy
 
     time = _spilled(0)
     mean = _spilled(1)
@@ -182,6 +207,15 @@ class SpilledTrajectory(Trajectory):
     pred_cov = _spilled(6)
     plot_ids = _spilled(7)
     sensor_ids = _spilled(8)
+
+
+def held(traj: Trajectory) -> Trajectory:
+    """``traj``, or for a spilled one a copy that reads each array once (:meth:`SpilledTrajectory.held`).
+
+    For a reader that goes through the trajectories one at a time and uses
+    each one's arrays several times.
+    """
+    return traj.held() if isinstance(traj, SpilledTrajectory) else traj
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -210,3 +244,94 @@ class AsSeenTable:
             sd=np.zeros(0),
             existence=np.zeros(0),
         )
+
+    @property
+    def rows(self) -> int:
+        """Number of rows."""
+        return int(self.time.size)
+
+    @property
+    def sized(self) -> bool:
+        """True when some row has a hull length (``as_seen.csv`` then has ``length_m``)."""
+        return self.length is not None and bool(np.isfinite(self.length).any())
+
+    def blocks(self, rows: int = AS_SEEN_BLOCK_ROWS) -> Iterator[AsSeenTable]:
+        """The table as consecutive pieces of at most ``rows`` rows, in order.
+
+        A reader that goes through the pieces one at a time never needs the
+        whole table in memory (see :class:`SpilledAsSeenTable`).
+        """
+        for r0 in range(0, self.rows, rows):
+            sl = slice(r0, r0 + rows)
+            yield AsSeenTable(time=self.time[sl], track=self.track[sl], mean=self.mean[sl],
+                              sd=self.sd[sl], existence=self.existence[sl],
+                              length=None if self.length is None else self.length[sl])
+
+
+def _seen_column(k: int) -> Any:
+    def read(self: SpilledAsSeenTable) -> Any:
+        parts = [self._column(key, k) for key in self.keys]
+        if parts:
+            return np.concatenate(parts)
+        return self.names[:0] if k == 1 else np.zeros((0, 4) if k == 2 else 0)
+
+    read.__doc__ = (f"``{_SEEN_NAMES[k]}`` of every row, read back whole from the spill store "
+                    "(for small tables and tests; a long run's readers use :meth:`blocks`).")
+    return property(read)
+
+
+_SEEN_NAMES = ("time", "track", "mean", "sd", "existence", "length")
+
+
+class SpilledAsSeenTable(AsSeenTable):
+    """An :class:`AsSeenTable` whose rows live in a :class:`~harbourwatch.io.spill.SpillStore`.
+
+    A day's feed has millions of as-seen rows (about 130 bytes each in
+    memory): they are kept on disk as groups of consecutive rows, already in
+    the table's order, each group ``(time, code, mean, sd, existence,
+    length)`` with ``code`` an ``int32`` index into ``names`` (the track
+    ids, sorted). :meth:`blocks` reads one group at a time; the column
+    attributes read the whole table (same values as an in-memory table).
+    """
+
+    store: SpillStore
+    keys: tuple[int, ...]
+    names: NDArray[np.str_]
+    _rows: int
+    _sized: bool
+
+    def __init__(self, *, store: SpillStore, keys: tuple[int, ...], names: NDArray[np.str_],
+                 rows: int, sized: bool) -> None:
+        for name, value in (("store", store), ("keys", keys), ("names", names),
+                            ("_rows", rows), ("_sized", sized)):
+            object.__setattr__(self, name, value)
+
+    def __repr__(self) -> str:
+        return f"SpilledAsSeenTable(rows={self._rows}, groups={len(self.keys)})"
+
+    def _column(self, key: int, k: int) -> Any:
+        a = self.store.get(key)[k]
+        return self.names[a] if k == 1 else a
+
+    @property
+    def rows(self) -> int:
+        return int(self._rows)
+
+    @property
+    def sized(self) -> bool:
+        return bool(self._sized)
+
+    def blocks(self, rows: int = AS_SEEN_BLOCK_ROWS) -> Iterator[AsSeenTable]:
+        for key in self.keys:
+            t, code, mean, sd, ex, length = self.store.get(key)
+            for r0 in range(0, int(t.size), rows):
+                sl = slice(r0, r0 + rows)
+                yield AsSeenTable(time=t[sl], track=self.names[code[sl]], mean=mean[sl], sd=sd[sl],
+                                  existence=ex[sl], length=length[sl])
+
+    time = _seen_column(0)
+    track = _seen_column(1)
+    mean = _seen_column(2)
+    sd = _seen_column(3)
+    existence = _seen_column(4)
+    length = _seen_column(5)

@@ -18,7 +18,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from harbourwatch.scene.geodesy import LocalFrame
-from harbourwatch.trajectories._records import AsSeenTable, Trajectory
+from harbourwatch.trajectories._records import AsSeenTable, Trajectory, held
 from harbourwatch.units import KNOT_M_S
 
 __all__ = [
@@ -69,11 +69,15 @@ TRACK_COLUMNS = ("track", "time", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "ex
 SIZE_COLUMNS = ("length_m", "beam_m", "heading_deg", "plots_per_scan")
 AS_SEEN_COLUMNS = ("time", "track", "lat", "lon", "sog_kn", "cog_deg", "sd_m", "existence")
 
-#: Rows of a CSV chunk (about 25 MB of text): large enough for pyarrow's writer to run at
-#: full speed, small enough that a chunk's columns are a few tens of megabytes.
-CHUNK_ROWS = 1 << 18
-#: Features of a GeoJSON chunk.
+#: Rows of a CSV chunk (about 6 MB of text): large enough for pyarrow's writer to run at
+#: full speed, small enough that a chunk's columns and their text (some 600 bytes a row
+#: while it is made) stay near 40 MB.
+CHUNK_ROWS = 1 << 16
+#: Features of a GeoJSON chunk (at most; see :data:`CHUNK_STATES`).
 CHUNK_FEATURES = 256
+#: States of a GeoJSON chunk: a chunk ends once its features hold this many positions
+#: (each feature is turned to text at once, so a chunk is text of about 2 MB).
+CHUNK_STATES = 1 << 16
 
 
 def _sog_cog(frame: LocalFrame, mean: Array) -> tuple[Array, Array, Array, Array]:
@@ -124,7 +128,7 @@ def _row_blocks(ts: tuple[Trajectory, ...], rows: int) -> Iterator[list[tuple[Tr
     """Consecutive ``(trajectory, first, stop)`` state ranges of at most ``rows`` rows in all."""
     block: list[tuple[Trajectory, int, int]] = []
     room = rows
-    for t in ts:
+    for t in map(held, ts):  # each array of a spilled trajectory read once
         n = int(t.time.size)
         i = 0
         while i < n:
@@ -204,26 +208,26 @@ def as_seen_csv_chunks(tset: TrajectorySet, *, rows: int = CHUNK_ROWS) -> Iterat
     from harbourwatch.io.timefmt import format_utc_list
 
     a = tset.as_seen
-    if a.time.size == 0:
+    if a.rows == 0:
         yield ",".join(AS_SEEN_COLUMNS) + "\n"
         return
     header: tuple[str, ...] = AS_SEEN_COLUMNS
     decimals: list[int | None] = [None, None, 7, 7, 2, 1, 1, 4]
-    sized = a.length is not None and bool(np.isfinite(a.length).any())  # as in tracks.csv
+    sized = a.sized  # as in tracks.csv
     if sized:
         header, decimals = AS_SEEN_COLUMNS + ("length_m",), decimals + [None]
-    for r0 in range(0, int(a.time.size), rows):
-        sl = slice(r0, r0 + rows)
-        lat, lon, sog, cog = _sog_cog(tset.frame, a.mean[sl])
-        columns: list[Any] = [format_utc_list(a.time[sl]), a.track[sl], lat, lon, sog, cog,
-                              a.sd[sl], a.existence[sl]]
+    first = True
+    for b in a.blocks(rows):  # a spilled table is read one block at a time
+        lat, lon, sog, cog = _sog_cog(tset.frame, b.mean)
+        columns: list[Any] = [format_utc_list(b.time), b.track, lat, lon, sog, cog,
+                              b.sd, b.existence]
         if sized:
-            assert a.length is not None
-            length = a.length[sl]
-            text = np.char.mod("%.1f", length).astype(object)
-            text[~np.isfinite(length)] = ""
+            assert b.length is not None
+            text = np.char.mod("%.1f", b.length).astype(object)
+            text[~np.isfinite(b.length)] = ""
             columns.append(text.tolist())
-        yield _csv_text(header, columns, decimals, include_header=r0 == 0)
+        yield _csv_text(header, columns, decimals, include_header=first)
+        first = False
 
 
 def as_seen_csv_text(tset: TrajectorySet) -> str:
@@ -310,14 +314,24 @@ def trajectories_geojson(tset: TrajectorySet) -> dict[str, Any]:
             "features": [_feature(tset.frame, t) for t in tset.trajectories]}
 
 
-def geojson_chunks(tset: TrajectorySet, *, features: int = CHUNK_FEATURES) -> Iterator[str]:
+def geojson_chunks(tset: TrajectorySet, *, features: int = CHUNK_FEATURES,
+                   states: int = CHUNK_STATES) -> Iterator[str]:
     """``trajectories.geojson`` as text chunks: the compact JSON of
-    :func:`trajectories_geojson` and a newline, ``features`` features at a time.
+    :func:`trajectories_geojson` and a newline, at most ``features`` features
+    or about ``states`` positions at a time.
     """
-    ts = tset.trajectories
     yield '{"type":"FeatureCollection","features":['
-    for k in range(0, len(ts), features):
-        text = ",".join(json.dumps(_feature(tset.frame, t), separators=(",", ":"))
-                        for t in ts[k : k + features])
-        yield text if k == 0 else "," + text
+    parts: list[str] = []
+    positions = 0
+    first = True
+    for t in map(held, tset.trajectories):
+        parts.append(json.dumps(_feature(tset.frame, t), separators=(",", ":")))
+        positions += int(t.time.size)
+        if len(parts) >= features or positions >= states:
+            text = ",".join(parts)
+            yield text if first else "," + text
+            parts, positions, first = [], 0, False
+    if parts:
+        text = ",".join(parts)
+        yield text if first else "," + text
     yield "]}\n"
