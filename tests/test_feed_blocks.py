@@ -22,9 +22,9 @@ from strategies import plot_rows
 from test_feeds import SENSORS, T0  # the two Calder radars and 2026-05-04T06:00:00Z
 
 from harbourwatch.errors import InputError, OutputError
-from harbourwatch.io import table_reader, text
+from harbourwatch.io import feeds, table_reader, text
 from harbourwatch.io.columns import StoredColumn
-from harbourwatch.io.feeds import PlotTable, group_scans, read_feeds
+from harbourwatch.io.feeds import PlotTable, group_scans, read_feeds, scan_arrays
 from harbourwatch.io.plotstore import STORED, store_plot_columns
 
 COLUMNS = ("time", "sensor", "lat_deg", "lon_deg", "scan", "sigma_m", "source", "line")
@@ -255,6 +255,14 @@ def test_order_and_duplicates_equal_a_full_lexsort(tmp_path, data, n, split):
         p.write_text("time,sensor,lat,lon,sigma_m\n" + "".join(x + "\n" for x in lines[a:b]))
         paths.append(p)
     got = read_feeds([str(p) for p in paths], SENSORS)
+    with pytest.MonkeyPatch.context() as m:  # long columns are put in order a slice at a time
+        m.setattr(feeds, "_GATHER_ROWS", 7)
+        sliced = read_feeds([str(p) for p in paths], SENSORS)
+        sliced_scans = scan_arrays(sliced, SENSORS)
+    _same(got, sliced)
+    whole_scans = scan_arrays(got, SENSORS)
+    for name in ("sensor", "number", "time", "offsets", "rows"):
+        np.testing.assert_array_equal(getattr(sliced_scans, name), getattr(whole_scans, name))
     # the reference: numpy's lexsort over every column at once (file, then line last), then the
     # first of each run of rows equal in the six contract fields
     src = np.concatenate([np.full(b - a, i) for i, (a, b) in
@@ -275,3 +283,29 @@ def test_order_and_duplicates_equal_a_full_lexsort(tmp_path, data, n, split):
     np.testing.assert_array_equal(np.asarray(got.source), src[kept])
     np.testing.assert_array_equal(got.time, tt[kept])
     assert got.duplicates_dropped == n - kept.size
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_input_checks_in_blocks_give_the_whole_feeds_warnings(seed):
+    from harbourwatch.scene.build import sensor_models
+    from harbourwatch.scene.checks import InputChecks, input_warnings
+    from harbourwatch.scene.geodesy import LocalFrame
+
+    rng = np.random.default_rng(seed)
+    n = 3000
+    frame = LocalFrame.around([s.lat_deg for s in SENSORS], [s.lon_deg for s in SENSORS])
+    models = sensor_models(SENSORS, frame)
+    # plots of sensor 1 far outside its cover, a fifth of sensor 0's sigma_m far below its model
+    sensor = rng.integers(0, 2, n)
+    xy = rng.normal(0, 5000, (n, 2)) + np.where(sensor[:, None] == 1, 90_000.0, 0.0)
+    sigma = np.where((sensor == 0) & (rng.random(n) < 0.2), 0.05, np.nan)
+    table = PlotTable(time=np.arange(n, dtype=float), sensor=sensor, lat_deg=np.zeros(n),
+                      lon_deg=np.zeros(n), scan=np.full(n, -1), sigma_m=sigma,
+                      source=np.zeros(n, np.int64), line=np.arange(2, n + 2), files=("f",))
+    whole = input_warnings(table, SENSORS, models, xy)
+    assert len(whole) >= 2  # the far sensor and the sigma_m line both fire
+    for block in (1, 17, 1000):
+        checks = InputChecks(SENSORS, models)
+        for a in range(0, n, block):
+            checks.add(sensor[a:a + block], sigma[a:a + block], xy[a:a + block])
+        assert checks.warnings() == whole

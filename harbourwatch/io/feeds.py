@@ -107,16 +107,17 @@ MAX_SIGMA_M = 100_000.0
 _COLUMNS = ("time", "sensor", "lat", "lon", "scan", "sigma_m")
 
 
-#: Columns of the feed besides time, as read (the time column stays in memory for the sort).
+#: Columns of the feed besides time (time is read back whole for the sort, the others by row).
 _ON_DISK = ("sensor", "lat", "lon", "scan", "sigma_m", "source", "line")
+#: Rows gathered at a time when a long column is put in order.
+_GATHER_ROWS = 1 << 22
 _DTYPES = {"time": np.float64, "sensor": np.int64, "lat": np.float64, "lon": np.float64,
            "scan": np.int64, "sigma_m": np.float64, "source": np.int64, "line": np.int64}
 
 
 def _read_one(path: str, index: int, sensors: Sequence[SensorConfig],
-              sinks: dict[str, ColumnWriter], times: list[NDArray[np.float64]],
-              window: tuple[float, float] | None) -> str:
-    """Read and validate one feed file, its rows appended to ``sinks``/``times``; its SHA-256.
+              sinks: dict[str, ColumnWriter], window: tuple[float, float] | None) -> str:
+    """Read and validate one feed file, its rows appended to ``sinks``; its SHA-256.
 
     The file streams through in blocks of lines (:func:`read_tables`): each
     block's text is parsed, checked, appended to the columns on disk and
@@ -136,7 +137,6 @@ def _read_one(path: str, index: int, sensors: Sequence[SensorConfig],
         if window is not None:
             inside = (cols["time"] >= window[0]) & (cols["time"] < window[1])
             cols = {c: v[inside] for c, v in cols.items()}
-        times.append(cols.pop("time"))
         for c, v in cols.items():
             sinks[c].append(v)
     return tables.sha256
@@ -231,26 +231,25 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
     numbers assume no line break inside a quoted value.
     """
     files = tuple(str(p) for p in paths)
-    sinks = {c: ColumnWriter(_DTYPES[c]) for c in _ON_DISK}
-    times: list[NDArray[np.float64]] = []
-    digests = tuple(_read_one(f, i, sensors, sinks, times, window) for i, f in enumerate(files))
-    time = np.concatenate(times) if times else np.empty(0)
-    del times
+    sinks = {c: ColumnWriter(_DTYPES[c]) for c in ("time", *_ON_DISK)}
+    digests = tuple(_read_one(f, i, sensors, sinks, window) for i, f in enumerate(files))
     stored = {c: w.finish() for c, w in sinks.items()}
-    order, keep = _sorted_order(time, stored)
-    time = time[order]
+    del sinks
+    time, order, keep = _sorted_order(np.asarray(stored.pop("time")), stored)
     dropped = int(keep.size - np.count_nonzero(keep)) if keep is not None else 0
     if keep is not None:
         time, order = time[keep], order[keep]
-    # every other column in that order, one at a time (read whole, permuted, written back)
+    # every other column in that order, one at a time: read whole, gathered and written
+    # back a slice at a time
     out: dict[str, Any] = {}
     for c in _ON_DISK:
-        column = np.asarray(stored.pop(c))[order]
+        column = np.asarray(stored.pop(c))
         if c == "sensor":  # used all along the run: it stays in memory
-            out[c] = column
+            out[c] = column[order]
             continue
         w = ColumnWriter(_DTYPES[c])
-        w.append(column)
+        for a in range(0, order.size, _GATHER_ROWS):
+            w.append(column[order[a:a + _GATHER_ROWS]])
         out[c] = w.finish()
         del column, w
     del order
@@ -263,8 +262,8 @@ def read_feeds(paths: Sequence[str | PathLike[str]], sensors: Sequence[SensorCon
 
 
 def _sorted_order(time: NDArray[np.float64], stored: dict[str, StoredColumn],
-                  ) -> tuple[NDArray[np.int64], NDArray[np.bool_] | None]:
-    """The rows' order, and the mask of the rows kept (``None``: no duplicate), in that order.
+                  ) -> tuple[NDArray[np.float64], NDArray[np.int64], NDArray[np.bool_] | None]:
+    """The times sorted, the rows' order, and the mask of the rows kept (``None``: no duplicate).
 
     By time, then by the plot's own values, and only then by file and line:
     plots that share a time (a radar stamping a whole revolution at once)
@@ -275,9 +274,10 @@ def _sorted_order(time: NDArray[np.float64], stored: dict[str, StoredColumn],
     """
     order = np.argsort(time, kind="stable")
     t = time[order]
+    del time
     same = t[1:] == t[:-1]
     if not same.any():
-        return order, None
+        return t, order, None
     tied = np.zeros(t.size, dtype=bool)
     tied[1:] |= same
     tied[:-1] |= same
@@ -291,7 +291,7 @@ def _sorted_order(time: NDArray[np.float64], stored: dict[str, StoredColumn],
     order[pos] = rows[sub]
     keep = np.ones(t.size, dtype=bool)
     keep[pos] = _first_of_duplicates({c: v[sub] for c, v in cols.items()})
-    return order, (None if keep.all() else keep)
+    return t, order, (None if keep.all() else keep)
 
 
 def _first_of_duplicates(cols: dict[str, NDArray]) -> NDArray[np.bool_]:
@@ -384,29 +384,43 @@ def scan_arrays(plots: PlotTable, sensors: Sequence[SensorConfig]) -> ScanArrays
             "give the scan column in every feed file of this sensor or in none",
             file=plots.files[int(plots.source[row])], line=int(plots.line[row]), field="scan",
         )
-    # Revolution index for sensors without feed scan numbers.
+    # Revolution index for sensors without feed scan numbers (computed in place: a long
+    # feed's columns are large, and each temporary is one more of them)
     big = np.finfo(np.float64).max
     first = np.full(n_sensors, big)
     np.minimum.at(first, sensor, plots.time)
     period = np.array([s.scan_period_s for s in sensors] + [1.0] * (n_sensors - len(sensors)))
-    rev = np.floor((plots.time - first[sensor]) / period[sensor]).astype(np.int64)
-    number = np.where(has_scan, scan, rev)
-    del scan
+    rev = first[sensor]
+    np.subtract(plots.time, rev, out=rev)
+    np.divide(rev, period[sensor], out=rev)
+    np.floor(rev, out=rev)
+    number = rev.astype(np.int64)
+    del rev
+    np.copyto(number, scan, where=has_scan)
+    del scan, has_scan
 
     order = np.lexsort((plots.time, number, sensor))
-    s_sorted, n_sorted = sensor[order], number[order]
-    starts = np.flatnonzero(
-        np.concatenate(([True], (s_sorted[1:] != s_sorted[:-1]) | (n_sorted[1:] != n_sorted[:-1])))
-    )
+    s_sorted = sensor[order]
+    new_scan = s_sorted[1:] != s_sorted[:-1]
+    del s_sorted
+    n_sorted = number[order]
+    del number
+    new_scan |= n_sorted[1:] != n_sorted[:-1]
+    starts = np.flatnonzero(np.concatenate(([True], new_scan)))
+    del new_scan
     ends = np.append(starts[1:], n) - 1
     ref_time = plots.time[order[ends]]
-    g_sensor, g_number = s_sorted[starts], n_sorted[starts]
+    g_sensor, g_number = sensor[order[starts]], n_sorted[starts]
+    del n_sorted
     by = np.lexsort((g_number, g_sensor, ref_time))
     # the plot rows of every scan, scan after scan in the order of ``by``
     sizes = (ends - starts + 1)[by]
     offsets = np.concatenate(([0], np.cumsum(sizes)))
-    pos = np.repeat(starts[by] - offsets[:-1], sizes) + np.arange(n)
-    rows = order[pos].astype(np.int64, copy=False)
+    rows = np.repeat(starts[by] - offsets[:-1], sizes)
+    rows += np.arange(n)
+    for a in range(0, n, _GATHER_ROWS):  # positions into rows, a slice at a time
+        rows[a:a + _GATHER_ROWS] = order[rows[a:a + _GATHER_ROWS]]
+    del order
     return ScanArrays(sensor=g_sensor[by].astype(np.int64), number=g_number[by].astype(np.int64),
                       time=ref_time[by].astype(np.float64), offsets=offsets.astype(np.int64),
                       rows=rows)

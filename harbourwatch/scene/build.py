@@ -15,12 +15,13 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import NDArray
 
 from harbourwatch.io.feeds import PlotTable, Scan
 from harbourwatch.io.inputs import RunInputs
 from harbourwatch.io.records import FilterSettings, SensorConfig
-from harbourwatch.scene.checks import input_warnings
-from harbourwatch.scene.extent import Covers, check_frame_extent
+from harbourwatch.scene.checks import InputChecks
+from harbourwatch.scene.extent import Covers, check_sensors_in_frame, far_rows, refuse_far_plots
 from harbourwatch.scene.geodesy import LocalFrame
 from harbourwatch.scene.records import BirthRegion, MeasurementScan, SensorModel
 from harbourwatch.scene.scans import ScanStream
@@ -95,6 +96,32 @@ def measurement_scans(
     return ScanStream(plots, scans, models, sensors, frame)
 
 
+#: Plots moved into the frame at a time for the checks of :func:`into_local_frame`.
+CHECK_ROWS = 1 << 20
+
+
+def _check_plots(inputs: RunInputs, models: Sequence[SensorModel], frame: LocalFrame) -> list[str]:
+    """The frame's bound (refused) and the plausibility warnings, a block of plots at a time.
+
+    Raises
+    ------
+    InputError
+        A radar, or a plot (the first by file and line), beyond the frame's bound.
+    """
+    plots = inputs.plots
+    check_sensors_in_frame(inputs.sensors, frame, inputs.sensors_path or None)
+    checks = InputChecks(inputs.sensors, models)
+    far: list[NDArray[np.int64]] = []
+    for a in range(0, len(plots), CHECK_ROWS):
+        b = min(len(plots), a + CHECK_ROWS)
+        e, n = frame.to_local(plots.lat_deg[a:b], plots.lon_deg[a:b])
+        far.append(a + far_rows(e, n))
+        checks.add(plots.sensor[a:b], plots.sigma_m[a:b], np.column_stack([e, n]))
+    refuse_far_plots(plots, inputs.sensors, frame,
+                     np.concatenate(far) if far else np.empty(0, np.int64))
+    return checks.warnings()
+
+
 def _birth_regions(zones: Mapping[str, LocalZone], per_hour: float) -> tuple[BirthRegion, ...]:
     if per_hour <= 0:
         return ()
@@ -129,11 +156,7 @@ def into_local_frame(inputs: RunInputs, settings: FilterSettings | None = None) 
     frame = LocalFrame.around([s.lat_deg for s in inputs.sensors],
                               [s.lon_deg for s in inputs.sensors])
     models = sensor_models(inputs.sensors, frame)
-    e, n = frame.to_local(np.asarray(inputs.plots.lat_deg), np.asarray(inputs.plots.lon_deg))
-    check_frame_extent(inputs.plots, inputs.sensors, frame, e, n,
-                       sensors_path=inputs.sensors_path or None)
-    warnings = input_warnings(inputs.plots, inputs.sensors, models, np.column_stack([e, n]))
-    del e, n  # the checks' copy of every plot in the frame; the filter's comes block by block
+    warnings = _check_plots(inputs, models, frame)
     zones = local_zones(inputs.zones, frame, Covers.of(inputs.sensors, frame), warnings)
     return LocalScene(
         frame=frame,

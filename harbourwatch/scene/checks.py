@@ -21,7 +21,7 @@ from harbourwatch.io.feeds import PlotTable
 from harbourwatch.io.records import SensorConfig
 from harbourwatch.scene.records import SensorModel
 
-__all__ = ["input_warnings", "clutter_warnings", "SIGMA_FACTOR", "CLUTTER_FACTOR"]
+__all__ = ["InputChecks", "input_warnings", "clutter_warnings", "SIGMA_FACTOR", "CLUTTER_FACTOR"]
 
 #: sigma_m more than this factor below or above the sensor model at the plot's range is far.
 SIGMA_FACTOR = 3.0
@@ -38,6 +38,110 @@ def _pct(x: float) -> str:
     return f"{100.0 * x:.0f} %"
 
 
+class InputChecks:
+    """Plots outside the covers and ``sigma_m`` far from the sensor model, gathered block by block.
+
+    :meth:`add` takes the plots of consecutive rows with their positions in
+    the frame; :meth:`warnings` gives the lines :func:`input_warnings` gives
+    for all of them at once. Only counts, the nearest range of each sensor
+    and the far ``sigma_m`` values are kept, so a long feed is checked in
+    blocks of its rows.
+    """
+
+    def __init__(self, sensors: Sequence[SensorConfig], models: Sequence[SensorModel]) -> None:
+        self.sensors = tuple(sensors)
+        self.sites = np.array([m.site for m in models], float).reshape(-1, 2)
+        self.ranges = np.array([m.max_range_m for m in models], float)
+        k = len(models)
+        self.n = 0
+        self.in_any = 0
+        self.count = np.zeros(k, np.int64)
+        self.in_own = np.zeros(k, np.int64)
+        self.nearest = np.full(k, np.inf)
+        self.given = np.zeros(k, np.int64)
+        self.far: list[dict[str, list[NDArray[np.float64]]]] = [
+            {"low": [], "low_model": [], "high": [], "high_model": []} for _ in range(k)]
+
+    def add(self, sensor: NDArray[np.int64], sigma: NDArray[np.float64],
+            xy: NDArray[np.float64]) -> None:
+        """One block of rows: their sensor indices, ``sigma_m`` and ``(n, 2)`` frame positions."""
+        if sensor.size == 0:
+            return
+        self.n += int(sensor.size)
+        sites, ranges = self.sites, self.ranges
+        rho = np.hypot(xy[:, 0] - sites[sensor, 0], xy[:, 1] - sites[sensor, 1])
+        in_any = np.zeros(sensor.size, bool)
+        for k in range(len(ranges)):
+            in_any |= np.hypot(xy[:, 0] - sites[k, 0], xy[:, 1] - sites[k, 1]) <= ranges[k] * _RANGE_SLACK
+        self.in_any += int(np.count_nonzero(in_any))
+        in_own = rho <= ranges[sensor] * _RANGE_SLACK
+        for k, s in enumerate(self.sensors):
+            mine = sensor == k
+            if not mine.any():
+                continue
+            self.count[k] += int(np.count_nonzero(mine))
+            self.in_own[k] += int(np.count_nonzero(in_own & mine))
+            self.nearest[k] = min(self.nearest[k], float(rho[mine].min()))
+            self._sigma(k, s, sigma[mine], rho[mine])
+
+    def _sigma(self, k: int, s: SensorConfig, sigma: NDArray[np.float64],
+               rho: NDArray[np.float64]) -> None:
+        given = np.isfinite(sigma)
+        if not given.any():
+            return
+        sig, r = sigma[given], rho[given]
+        self.given[k] += int(sig.size)
+        cross = r * math.radians(s.bearing_sigma_deg)
+        lo = np.minimum(s.range_sigma_m, cross)
+        hi = np.maximum(s.range_sigma_m, cross)
+        low = sig < lo / SIGMA_FACTOR
+        high = sig > hi * SIGMA_FACTOR
+        far = self.far[k]
+        far["low"].append(sig[low])
+        far["low_model"].append(lo[low])
+        far["high"].append(sig[high])
+        far["high_model"].append(hi[high])
+
+    def warnings(self) -> list[str]:
+        """The warnings of every row added so far."""
+        out: list[str] = []
+        if self.n == 0:
+            return out
+        outside = 1.0 - self.in_any / self.n
+        if outside > 0.5:
+            out.append(f"{_pct(outside)} of the {self.n} plots lie outside every radar's cover: are "
+                       "the sensor positions (lat, lon) and max_range_m right?")
+        for k, s in enumerate(self.sensors):
+            count = int(self.count[k])
+            if count == 0:
+                continue
+            share = int(self.in_own[k]) / count
+            if share < 0.01:
+                out.append(f"sensor {s.id!r}: {'none' if share == 0 else _pct(share)} of its "
+                           f"{count} plots lie within its cover ({s.max_range_m / 1000:g} km); the "
+                           f"nearest is {float(self.nearest[k]) / 1000:,.1f} km from it: a wrong "
+                           "sign in its longitude or latitude?")
+            out.extend(self._sigma_lines(k, s))
+        return out
+
+    def _sigma_lines(self, k: int, s: SensorConfig) -> list[str]:
+        size = int(self.given[k])
+        if size == 0:
+            return []
+        far = {key: np.concatenate(v) if v else np.empty(0) for key, v in self.far[k].items()}
+        out = []
+        for key, word in (("low", "below a third of"), ("high", "above three times")):
+            sig, model = far[key], far[f"{key}_model"]
+            n = int(sig.size)
+            if n and n >= _SIGMA_SHARE * size:
+                out.append(
+                    f"sensor {s.id!r}: {n} of {size} plots give sigma_m {word} its range/"
+                    f"bearing model at their range (median {float(np.median(sig)):.3g} m "
+                    f"against {float(np.median(model)):.3g} m): the filter weighs these plots "
+                    "by sigma_m; check the feed's sigma_m column and its unit")
+        return out
+
+
 def input_warnings(plots: PlotTable, sensors: Sequence[SensorConfig],
                    models: Sequence[SensorModel], xy: NDArray[np.float64]) -> list[str]:
     """Warnings about plots outside the covers and ``sigma_m`` far from the sensor model.
@@ -49,59 +153,9 @@ def input_warnings(plots: PlotTable, sensors: Sequence[SensorConfig],
     sensors, models
         The radars as configured and in the frame (same order).
     """
-    out: list[str] = []
-    n = len(plots)
-    if n == 0:
-        return out
-    sites = np.array([m.site for m in models], float)
-    ranges = np.array([m.max_range_m for m in models], float)
-    own = plots.sensor
-    rho = np.hypot(xy[:, 0] - sites[own, 0], xy[:, 1] - sites[own, 1])
-    in_any = np.zeros(n, bool)
-    for k in range(len(models)):
-        in_any |= np.hypot(xy[:, 0] - sites[k, 0], xy[:, 1] - sites[k, 1]) <= ranges[k] * _RANGE_SLACK
-    outside = 1.0 - np.count_nonzero(in_any) / n
-    if outside > 0.5:
-        out.append(f"{_pct(outside)} of the {n} plots lie outside every radar's cover: are the "
-                   "sensor positions (lat, lon) and max_range_m right?")
-    in_own = rho <= ranges[own] * _RANGE_SLACK
-    for k, s in enumerate(sensors):
-        mine = own == k
-        count = int(np.count_nonzero(mine))
-        if count == 0:
-            continue
-        share = np.count_nonzero(in_own & mine) / count
-        if share < 0.01:
-            nearest = float(rho[mine].min())
-            out.append(f"sensor {s.id!r}: {'none' if share == 0 else _pct(share)} of its "
-                       f"{count} plots lie within its cover ({s.max_range_m / 1000:g} km); the "
-                       f"nearest is {nearest / 1000:,.1f} km from it: a wrong sign in its "
-                       "longitude or latitude?")
-        out.extend(_sigma_warning(s, plots.sigma_m[mine], rho[mine]))
-    return out
-
-
-def _sigma_warning(s: SensorConfig, sigma: NDArray[np.float64],
-                   rho: NDArray[np.float64]) -> list[str]:
-    given = np.isfinite(sigma)
-    if not given.any():
-        return []
-    sig, r = sigma[given], rho[given]
-    cross = r * math.radians(s.bearing_sigma_deg)
-    lo = np.minimum(s.range_sigma_m, cross)
-    hi = np.maximum(s.range_sigma_m, cross)
-    low = sig < lo / SIGMA_FACTOR
-    high = sig > hi * SIGMA_FACTOR
-    out = []
-    for mask, word, model in ((low, "below a third of", lo), (high, "above three times", hi)):
-        k = int(np.count_nonzero(mask))
-        if k and k >= _SIGMA_SHARE * sig.size:
-            out.append(
-                f"sensor {s.id!r}: {k} of {sig.size} plots give sigma_m {word} its range/"
-                f"bearing model at their range (median {float(np.median(sig[mask])):.3g} m "
-                f"against {float(np.median(model[mask])):.3g} m): the filter weighs these plots "
-                "by sigma_m; check the feed's sigma_m column and its unit")
-    return out
+    checks = InputChecks(sensors, models)
+    checks.add(np.asarray(plots.sensor), np.asarray(plots.sigma_m), xy)
+    return checks.warnings()
 
 
 def clutter_warnings(plots: PlotTable, sensors: Sequence[SensorConfig],

@@ -35,7 +35,8 @@ from harbourwatch.io.records import SensorConfig, ZoneConfig
 from harbourwatch.scene.geodesy import LocalFrame
 
 __all__ = ["ACCURATE_WITHIN_M", "SIMPLIFY_M", "SIMPLIFY_ABOVE_VERTICES", "Covers",
-           "clip_margin_m", "check_frame_extent"]
+           "clip_margin_m", "check_frame_extent", "check_sensors_in_frame", "far_rows",
+           "refuse_far_plots"]
 
 #: Radius around the frame centre within which plots, radars and zones are accepted.
 #: (1000 km / 6371 km)² / 6 = 0.41 % (scale bound of the module docstring).
@@ -136,6 +137,13 @@ def check_frame_extent(plots: PlotTable, sensors: Sequence[SensorConfig], frame:
     ``east``/``north`` are the plots in the frame: their distance from the
     centre is the geodesic distance (exact in the azimuthal equidistant frame).
     """
+    check_sensors_in_frame(sensors, frame, sensors_path)
+    refuse_far_plots(plots, sensors, frame, far_rows(east, north))
+
+
+def check_sensors_in_frame(sensors: Sequence[SensorConfig], frame: LocalFrame,
+                           sensors_path: str | None = None) -> None:
+    """Refuse a radar farther than :data:`ACCURATE_WITHIN_M` from the frame centre."""
     se, sn = frame.to_local([s.lat_deg for s in sensors], [s.lon_deg for s in sensors])
     for s, r in zip(sensors, np.hypot(se, sn), strict=True):
         if not r <= ACCURATE_WITHIN_M:
@@ -143,12 +151,19 @@ def check_frame_extent(plots: PlotTable, sensors: Sequence[SensorConfig], frame:
                 f"sensor {s.id!r} is {r / 1000:,.0f} km from the middle of the radars: the "
                 f"run's local frame holds radars within {ACCURATE_WITHIN_M / 1000:,.0f} km of "
                 "it; review far-apart ports in separate runs", file=sensors_path, field="lon")
-    r = np.hypot(east, north)
-    bad = ~(r <= ACCURATE_WITHIN_M)
-    if not bad.any():
+
+
+def far_rows(east: NDArray[np.float64], north: NDArray[np.float64]) -> NDArray[np.int64]:
+    """Indices of the plots (in the frame) farther than :data:`ACCURATE_WITHIN_M` from its centre."""
+    return np.flatnonzero(~(np.hypot(east, north) <= ACCURATE_WITHIN_M))
+
+
+def refuse_far_plots(plots: PlotTable, sensors: Sequence[SensorConfig], frame: LocalFrame,
+                     far: NDArray[np.int64]) -> None:
+    """Refuse the first (by file and line) of the plots ``far`` (rows of ``plots``), if any."""
+    if far.size == 0:
         return
-    idx = np.flatnonzero(bad)
-    first = idx[np.lexsort((plots.line[idx], plots.source[idx]))[0]]
+    first = int(far[np.lexsort((plots.line[far], plots.source[far]))[0]])
     s = sensors[int(plots.sensor[first])]
     d = frame.geodesic_m(np.array([s.lat_deg]), np.array([s.lon_deg]),
                          plots.lat_deg[first:first + 1], plots.lon_deg[first:first + 1])
