@@ -27,7 +27,8 @@ import numpy as np
 
 from harbourwatch.errors import InputError
 from harbourwatch.io.atomic import atomic_write_text, sha256_file
-from harbourwatch.io.table_reader import parse_time, read_table
+from harbourwatch.io.column_parse import parse_time
+from harbourwatch.io.table_reader import read_table
 from harbourwatch.io.timefmt import format_utc_one
 
 __all__ = ["FileSpan", "ChunkPlan", "discover_feeds", "scan_file", "plan_chunks",

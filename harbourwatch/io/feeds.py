@@ -27,18 +27,11 @@ import pandas as pd
 from numpy.typing import NDArray
 
 from harbourwatch.errors import InputError
+from harbourwatch.io.column_parse import Problem, parse_sensor, parse_time, time_form
+from harbourwatch.io.column_parse import parse_float as _parse_float
 from harbourwatch.io.columns import ColumnWriter, StoredColumn
 from harbourwatch.io.records import SensorConfig
-from harbourwatch.io.table_reader import (
-    Problem,
-    Table,
-    parse_sensor,
-    parse_time,
-    read_tables,
-    release_unused_memory,
-    time_form,
-)
-from harbourwatch.io.table_reader import parse_float as _parse_float
+from harbourwatch.io.table_reader import Table, read_tables, release_unused_memory
 
 __all__ = ["PlotTable", "Scan", "ScanArrays", "read_feeds", "group_scans", "scan_arrays"]
 
